@@ -323,6 +323,144 @@ def _speciation(eq: Equilibrium, point: int, prep: Prepared, method: Method, met
     return out
 
 
+@dataclass
+class _Plan:
+    """One titration's set-up between the batched solves (internal)."""
+
+    sample: Sample
+    method: Method
+    prep: Prepared
+    system: object
+    metals: list
+    totals: object
+    V_eq_ref: float
+    V_eq: float
+    V_x: float | None
+    V_hi: float
+    n_points: int
+    slow: list
+    warnings: list
+    assumptions: list
+    frozen: dict = field(default_factory=dict)
+    V: Array | None = None
+    Vf: Array | None = None
+    probe: list = field(default_factory=list)
+
+
+def _plan(sample: Sample, method: Method, n_points: int) -> _Plan:
+    cat = catalogue()
+    db = database()
+    prep = prepare(sample, method)
+    back = method.mode == "back"
+    metals = list(prep.metals)
+    if back and method.back_metal not in metals:
+        metals.append(method.back_metal)
+    _check_constants([m for m in metals if prep.metals.get(m, 0.0) > 0 or m == method.back_metal], method.titrant)
+    system = build_system(tuple(metals), method.ligands)
+    comps = system.components
+    V0, cT = sample.volume_mL, method.titrant_conc_M
+    c_ind = method.indicator_conc_M if method.indicator_conc_M is not None else cat.indicator(method.indicator).conc_M
+    n_an = sample.n_analyte_mmol
+    V_eq = n_an / cT
+    binding = [m for m in prep.metals if db.metals[m].get("binds_titrant", True) is not False]
+    V_all = sum(prep.metals[m] for m in binding) * V0 / cT
+    warnings, assumptions = list(prep.warnings), list(prep.assumptions)
+    base = np.zeros(len(comps))
+    for m, c in prep.metals.items():
+        base[comps.index(m)] = c
+    for lig, c in prep.ligand_totals.items():
+        base[comps.index(lig)] += c
+    base[comps.index(method.indicator)] += c_ind
+    iY = comps.index(method.titrant)
+
+    def totals_direct(V: Array) -> Array:
+        T = base[None, :] * (V0 / (V0 + V))[:, None]
+        T[:, iY] += cT * V / (V0 + V)
+        return T
+
+    slow = [m for m in sample.analyte if db.metals[m].get("slow_with_titrant")]
+    plan = _Plan(sample, method, prep, system, metals, totals_direct, V_eq, V_eq, None, 0.0, n_points, slow, warnings, assumptions)
+    if back:
+        V_x = method.excess_ratio * V_all
+        cB = method.back_concentration
+        VB_eq = (cT * V_x - n_an) / cB
+        iB = comps.index(method.back_metal)
+        plan.V_x, plan.V_eq_ref = V_x, VB_eq
+        plan.V_hi = max(1.8 * VB_eq, (cT * V_x) / cB * 1.1)
+        inert = np.zeros(len(comps))
+        if slow:
+            first = solve(system, totals_direct(np.array([V_x])), pH=method.pH, ionic_strength_M=sample.ionic_strength_M,
+                          temperature_C=sample.temperature_C)
+            for m in slow:
+                i = comps.index(m)
+                bound = first.bound(m, method.titrant)[0]
+                inert[i] += bound
+                inert[iY] += bound
+            plan.frozen = {m: float(first.bound(m, method.titrant)[0] / max(first.totals[0, comps.index(m)], 1e-300)) for m in slow}
+
+        def totals_back(V: Array) -> Array:
+            T0 = totals_direct(np.array([V_x]))[0] - inert
+            T = np.maximum(T0, 0.0)[None, :] * ((V0 + V_x) / (V0 + V_x + V))[:, None]
+            T[:, iB] += cB * V / (V0 + V_x + V)
+            return T
+        plan.totals = totals_back
+        assumptions.append(f"Back-titration: {method.excess_ratio:g} times the titrant needed for the metals present "
+                           f"({V_x:.2f} mL) is added first, then titrated with {cB:g} M {method.back_metal}.")
+        if slow:
+            assumptions.append(f"{', '.join(slow)} reacts with the titrant only on heating (boil a few minutes after the excess is "
+                               f"added); its complex is then inert and is not displaced by {method.back_metal} during the back-titration.")
+    else:
+        plan.V_hi = max(1.6 * V_eq, 1.25 * V_all, V_eq + 0.5)
+        if slow:
+            warnings.append(f"{', '.join(slow)} reacts too slowly with {method.titrant} at room temperature for a direct "
+                            f"titration: use a back-titration (common practice).")
+    plan.V = np.linspace(0.0, plan.V_hi, n_points)
+    return plan
+
+
+def _solve_batch(plans: Sequence[_Plan], grids: Sequence[Array | None]) -> list[Equilibrium | None]:
+    """Solve the grids of many titrations, one equilibrium call per chemical system."""
+    out: list[Equilibrium | None] = [None] * len(plans)
+    groups: dict[int, list[int]] = {}
+    for k, (p, g) in enumerate(zip(plans, grids)):
+        if g is not None and len(g):
+            groups.setdefault(id(p.system), []).append(k)
+    for ks in groups.values():
+        system = plans[ks[0]].system
+        T = np.concatenate([plans[k].totals(grids[k]) for k in ks])
+        pH = np.concatenate([np.full(len(grids[k]), plans[k].method.pH) for k in ks])
+        I = np.concatenate([np.full(len(grids[k]), plans[k].sample.ionic_strength_M) for k in ks])
+        Tc = np.concatenate([np.full(len(grids[k]), plans[k].sample.temperature_C) for k in ks])
+        labels = [f"{'back-titrant' if plans[k].method.mode == 'back' else 'titrant'} volume {v:.4f} mL "
+                  f"(pH {plans[k].method.pH:.2f}, {plans[k].method.titrant}, {plans[k].method.indicator})"
+                  for k in ks for v in grids[k]]
+        eq = solve(system, T, pH=pH, ionic_strength_M=I, temperature_C=Tc, point_labels=labels)
+        start = 0
+        for k in ks:
+            n = len(grids[k])
+            out[k] = _slice(eq, slice(start, start + n))
+            start += n
+    return out
+
+
+def _slice(eq: Equilibrium, sl: slice) -> Equilibrium:
+    return Equilibrium(system=eq.system, c=eq.c[sl], solid_amount=eq.solid_amount[sl], saturation_index=eq.saturation_index[sl],
+                       ionic_strength_M=eq.ionic_strength_M[sl], pH=eq.pH[sl], totals=eq.totals[sl],
+                       max_residual=eq.max_residual, iterations=eq.iterations)
+
+
+def _indicator_bound(plan: _Plan, eq: Equilibrium, metals: Sequence[str]) -> Array:
+    ind = plan.method.indicator
+    tot = eq.totals[:, eq.system.index(ind)]
+    return sum(eq.bound(ind, m) for m in metals) / np.maximum(tot, 1e-300)
+
+
+def _turned(plan: _Plan, eq: Equilibrium, ref: float) -> Array:
+    if plan.method.mode == "back":
+        return _indicator_bound(plan, eq, [plan.method.back_metal]) / max(ref, 1e-300)
+    return (ref - _indicator_bound(plan, eq, plan.metals)) / max(ref, 1e-300)
+
+
 def simulate(sample: Sample, method: Method, n_points: int = 161, pH_drift: bool = False) -> Titration:
     """Simulate the titration of ``sample`` by ``method`` on the full equilibrium.
 
@@ -340,145 +478,105 @@ def simulate(sample: Sample, method: Method, n_points: int = 161, pH_drift: bool
     -------
     Titration
     """
+    return simulate_many(sample, [method], n_points=n_points, pH_drift=pH_drift)[0]
+
+
+def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161, pH_drift: bool = False,
+                  errors: list | None = None) -> list[Titration | None]:
+    """Simulate many methods on one sample; candidates that share a chemical system are solved together.
+
+    Parameters
+    ----------
+    errors : list, optional
+        If given, a method that cannot be evaluated (a missing constant) yields None and its error is appended
+        as ``(index, exception)``; otherwise the error is raised.
+    """
+    plans: list[_Plan | None] = []
+    for k, m in enumerate(methods):
+        try:
+            plans.append(_plan(sample, m, n_points))
+        except MissingConstantError as exc:
+            if errors is None:
+                raise
+            errors.append((k, exc))
+            plans.append(None)
+    live = [p for p in plans if p is not None]
+    coarse = _solve_batch(live, [p.V for p in live])
+    refs, fine_grids = [], []
+    for p, eq in zip(live, coarse):
+        if p.method.mode == "back":
+            ref = float(_indicator_bound(p, eq, [p.method.back_metal])[-1])
+        else:
+            ref = float(_indicator_bound(p, eq, p.metals)[0])
+        refs.append(ref)
+        grid = None
+        if ref >= 0.2:
+            t = _turned(p, eq, ref)
+            x = _interp_crossing(p.V, t, 0.5)
+            if x is not None:
+                step = p.V[1] - p.V[0]
+                grid = np.linspace(max(0.0, x - 4 * step), min(p.V_hi * 1.2, x + 4 * step), p.n_points)
+        fine_grids.append(grid)
+    fine = _solve_batch(live, fine_grids)
+    V_eps = []
+    for p, eqf, grid, ref in zip(live, fine, fine_grids, refs):
+        V_eps.append(_interp_crossing(grid, _turned(p, eqf, ref), 0.5) if eqf is not None else None)
+    probes = [np.array([p.V_eq_ref] + ([v] if v is not None else [])) for p, v in zip(live, V_eps)]
+    probed = _solve_batch(live, probes)
+    results = iter(_finish(p, c, f, g, pr, ref, v, pH_drift)
+                   for p, c, f, g, pr, ref, v in zip(live, coarse, fine, fine_grids, probed, refs, V_eps))
+    return [None if p is None else next(results) for p in plans]
+
+
+def _finish(plan: _Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | None, eqp: Equilibrium, ref: float,
+            V_ep: float | None, pH_drift: bool) -> Titration:
     cat = catalogue()
-    db = database()
-    prep = prepare(sample, method)
+    sample, method, prep, system = plan.sample, plan.method, plan.prep, plan.system
+    comps, metals = system.components, plan.metals
     indicator = cat.indicator(method.indicator)
     back = method.mode == "back"
-    metals = list(prep.metals)
-    if back and method.back_metal not in metals:
-        metals.append(method.back_metal)
-    _check_constants([m for m in metals if prep.metals.get(m, 0.0) > 0 or m == method.back_metal], method.titrant)
-    system = build_system(tuple(metals), method.ligands)
-    comps = system.components
-    V0 = sample.volume_mL
-    cT = method.titrant_conc_M
-    c_ind = method.indicator_conc_M if method.indicator_conc_M is not None else indicator.conc_M
-    n_an = sample.n_analyte_mmol
-    V_eq = n_an / cT
-    binding = [m for m in prep.metals if db.metals[m].get("binds_titrant", True) is not False]
-    V_all = sum(prep.metals[m] for m in binding) * V0 / cT
-    warnings = list(prep.warnings)
-    assumptions = list(prep.assumptions)
-
-    def totals_direct(V: Array) -> Array:
-        d = V0 / (V0 + V)
-        T = np.zeros((len(V), len(comps)))
-        for m, c in prep.metals.items():
-            T[:, comps.index(m)] = c * d
-        T[:, comps.index(method.titrant)] += cT * V / (V0 + V)
-        for lig, c in prep.ligand_totals.items():
-            T[:, comps.index(lig)] += c * d
-        T[:, comps.index(method.indicator)] += c_ind * d
-        return T
-
-    slow = [m for m in sample.analyte if db.metals[m].get("slow_with_titrant")]
-    if back:
-        V_x = method.excess_ratio * V_all
-        cB = method.back_concentration
-        excess_mmol = cT * V_x - n_an
-        VB_eq = excess_mmol / cB
-        V_eq_ref = VB_eq
-        V_hi = max(1.8 * VB_eq, (cT * V_x) / cB * 1.1)
-
-        def totals(V: Array) -> Array:
-            T = totals_direct(np.full_like(V, V_x))
-            d = (V0 + V_x) / (V0 + V_x + V)
-            T *= d[:, None]
-            T[:, comps.index(method.back_metal)] += cB * V / (V0 + V_x + V)
-            return T
-        assumptions.append(f"Back-titration: {method.excess_ratio:g} times the titrant needed for the metals present "
-                           f"({V_x:.2f} mL) is added first, then titrated with {cB:g} M {method.back_metal}.")
-        if slow:
-            assumptions.append(f"{', '.join(slow)} reacts with the titrant only on heating (boil a few minutes after the excess is "
-                               f"added); its complex is then inert and is not displaced by {method.back_metal} during the back-titration.")
-    else:
-        V_x = None
-        V_eq_ref = V_eq
-        V_hi = max(1.6 * V_eq, 1.25 * V_all, V_eq + 0.5)
-        totals = totals_direct
-        if slow:
-            warnings.append(f"{', '.join(slow)} reacts too slowly with {method.titrant} at room temperature for a direct "
-                            f"titration: use a back-titration (common practice).")
-
-    labels = lambda V: [f"{'back-titrant' if back else 'titrant'} volume {v:.4f} mL" for v in V]  # noqa: E731
-    kw = dict(pH=method.pH, ionic_strength_M=sample.ionic_strength_M, temperature_C=sample.temperature_C)
-
-    def run(V: Array) -> Equilibrium:
-        T = totals(V)
-        if back and slow:
-            T = _freeze_inert(system, T, slow, method, prep, sample, V_x, kw)
-        return solve(system, T, point_labels=labels(V), **kw)
-
-    V = np.linspace(0.0, V_hi, n_points)
-    eq = run(V)
-    iI = comps.index(method.indicator)
-    metal_idx = [comps.index(m) for m in metals]
-
-    def bound_to(eq_: Equilibrium, metals_: Sequence[str]) -> Array:
-        tot = eq_.totals[:, iI]
-        return sum(eq_.bound(method.indicator, m) for m in metals_) / np.maximum(tot, 1e-300)
-
-    def turned_of(eq_: Equilibrium) -> Array:
-        if back:
-            f = bound_to(eq_, [method.back_metal])
-            return f / max(plateau, 1e-300)
-        f = bound_to(eq_, metals)
-        return (f0 - f) / max(f0, 1e-300)
-
-    f_start = bound_to(eq, metals)
-    f0 = float(f_start[0])
-    plateau = float(bound_to(eq, [method.back_metal])[-1]) if back else f0
-    turned = turned_of(eq)
-    V_ep = V10 = V90 = None
-    if plateau >= 0.2:
-        i_ep = _interp_crossing(V, turned, 0.5)
-        if i_ep is not None:
-            step = V[1] - V[0]
-            Vf = np.linspace(max(0.0, i_ep - 6 * step), min(V_hi * 1.2, i_ep + 6 * step), n_points)
-            if V_eq_ref > 0 and Vf[0] <= V_eq_ref <= Vf[-1]:
-                Vf = np.sort(np.append(Vf, V_eq_ref))
-            eqf = run(Vf)
-            tf = turned_of(eqf)
-            V_ep = _interp_crossing(Vf, tf, 0.5)
-            lo = _interp_crossing(Vf, tf, 0.1)
-            hi = _interp_crossing(Vf, tf, 0.9)
-            V10 = lo if lo is not None else _interp_crossing(V, turned, 0.1)
-            V90 = hi if hi is not None else _interp_crossing(V, turned, 0.9)
-            # merge the fine points into the curve
-            V = np.concatenate([V, Vf])
-            order = np.argsort(V, kind="stable")
-            V = V[order]
-            eq = _merge(eq, eqf, order)
-            turned = turned_of(eq)
-    else:
+    warnings, assumptions = list(plan.warnings), list(plan.assumptions)
+    V = plan.V
+    V10 = V90 = None
+    if eqf is not None:
+        tf = _turned(plan, eqf, ref)
+        V10 = _interp_crossing(grid, tf, 0.1)
+        V90 = _interp_crossing(grid, tf, 0.9)
+        t_coarse = _turned(plan, eq, ref)
+        if V10 is None or (grid[0] > 0 and tf[0] > 0.1):
+            V10 = _interp_crossing(V, t_coarse, 0.1)
+        if V90 is None:
+            V90 = _interp_crossing(V, t_coarse, 0.9)
+        Vall = np.concatenate([V, grid])
+        order = np.argsort(Vall, kind="stable")
+        V = Vall[order]
+        eq = _merge(eq, eqf, order)
+    elif ref < 0.2:
         warnings.append(f"{indicator.name} is hardly bound by the metals at pH {method.pH:.2f} "
-                        f"({100 * (plateau if back else f0):.0f} % bound): no visible colour change is predicted.")
-
-    # points of interest solved exactly
-    probe_V = [x for x in (V_eq_ref, V_ep) if x is not None and x >= 0]
-    eqp = run(np.array(probe_V)) if probe_V else None
+                        f"({100 * ref:.0f} % bound): no visible colour change is predicted.")
+    turned = _turned(plan, eq, ref)
+    n_an = sample.n_analyte_mmol
     pM = {m: -np.log10(np.maximum(eq.free(m), 1e-300)) for m in metals}
     bound_fraction = {m: eq.bound(m, method.titrant) / np.maximum(eq.totals[:, comps.index(m)], 1e-300) for m in metals}
-    pM_eq = {m: float(-np.log10(max(eqp.free(m)[0], 1e-300))) for m in metals} if eqp is not None else {}
-    pM_ep = {m: float(-np.log10(max(eqp.free(m)[1], 1e-300))) for m in metals} if (eqp is not None and V_ep is not None) else {}
+    pM_eq = {m: float(-np.log10(max(eqp.free(m)[0], 1e-300))) for m in metals}
+    pM_ep = {m: float(-np.log10(max(eqp.free(m)[1], 1e-300))) for m in metals} if V_ep is not None else {}
     if back:
-        error = None if V_ep is None else ((cT * V_x - method.back_concentration * V_ep) - n_an) / n_an * 100.0
+        error = None if V_ep is None else ((method.titrant_conc_M * plan.V_x - method.back_concentration * V_ep) - n_an) / n_an * 100.0
     else:
-        error = None if V_ep is None else (V_ep - V_eq) / V_eq * 100.0
+        error = None if V_ep is None else (V_ep - plan.V_eq) / plan.V_eq * 100.0
     sharp = None if (V10 is None or V90 is None) else abs(V90 - V10)
     cotitrated = {}
-    if eqp is not None and V_ep is not None:
+    if V_ep is not None:
         for m in sample.interferents:
             if m in comps:
                 tot = eqp.totals[1, comps.index(m)]
                 cotitrated[m] = float(eqp.bound(m, method.titrant)[1] / tot) if tot > 0 else 0.0
             else:
                 cotitrated[m] = 0.0
-    # indicator forms and colours
+    iI = comps.index(method.indicator)
     fr, colours = {}, {}
     tot_ind = np.maximum(eq.totals[:, iI], 1e-300)
-    for sp, row, k in zip(system.species, system.nu, range(len(system.species))):
+    for k, row in enumerate(system.nu):
         if row[iI] <= 0:
             continue
         metal_in = [c for c, v in zip(comps, row) if v > 0 and c in metals]
@@ -490,33 +588,28 @@ def simulate(sample: Sample, method: Method, n_points: int = 161, pH_drift: bool
             key = f"H{h if h > 1 else ''}In" if h > 0 else "In"
             colours[key] = indicator.free_colour(h)
         fr[key] = fr.get(key, 0.0) + row[iI] * eq.c[:, k] / tot_ind
-    # solids
     solids = {name: eq.solid_amount[:, j] for j, name in enumerate(system.solids) if np.any(eq.solid_amount[:, j] > 1e-12)}
-    i_end = int(np.argmin(np.abs(V - (V_ep if V_ep is not None else V_eq_ref))))
     pre_start = tuple(eq.solids_present(0))
-    pre_end = tuple(eqp.solids_present(1 if V_ep is not None else 0)) if eqp is not None else tuple(eq.solids_present(i_end))
+    pre_end = tuple(eqp.solids_present(1 if V_ep is not None else 0))
     for s_name in sorted(set(pre_start) | set(pre_end)):
         m = system.solid_metals[system.solids.index(s_name)]
         if m in sample.analyte:
-            warnings.append(f"The analyte {m} precipitates as {s_name}: the titration would be slow and low (raise the titrant "
-                            f"first, or change the pH).")
+            warnings.append(f"The analyte {m} precipitates as {s_name}: the titration would be slow and low (add the titrant "
+                            f"before the pH is raised, or change the pH).")
         else:
-            carried = ", ".join(sample.analyte)
-            warnings.append(f"{s_name} precipitates: it can adsorb or carry down {carried} and the indicator (a negative error that "
-                            f"grows with the precipitate); add most of the titrant before the pH is raised (Flaschka and Ganchoff).")
-    # blocking
+            warnings.append(f"{s_name} precipitates: it can adsorb or carry down {', '.join(sample.analyte)} and the indicator "
+                            f"(a negative error that grows with the precipitate); add most of the titrant before the pH is raised "
+                            f"(Flaschka and Ganchoff).")
     spec_start = _speciation(eq, 0, prep, method, metals)
     blocked = []
     for m in indicator.blocked_by:
-        if m not in prep.metals and m not in prep.masked_by_assumption and m not in sample.metals:
-            continue
         sp = spec_start.get(m)
-        if sp is None:
+        if sp is None or m not in sample.metals:
             continue
         held = sp["masked"] + (sp["bound to titrant"] if back else 0.0)
         if held < MASKED_THRESHOLD:
             blocked.append(m)
-    if V_ep is None and not blocked and f0 >= 0.2 and not back:
+    if V_ep is None and not blocked and ref >= 0.2 and not back:
         holders = {m: float(eq.bound(method.indicator, m)[-1]) for m in metals}
         worst = max(holders, key=holders.get)
         if holders[worst] / tot_ind[-1] > 0.5:
@@ -532,24 +625,19 @@ def simulate(sample: Sample, method: Method, n_points: int = 161, pH_drift: bool
                         f"to the buffer (it does not change the result).")
     if V_ep is not None and sharp is not None and sharp > GRADUAL_DROPS * DROP_mL:
         warnings.append(f"The colour change takes {sharp:.2f} mL ({sharp / DROP_mL:.0f} drops): too gradual to see sharply.")
-    # colour change as the analyst sees it
     h_free = _dominant_free_form(fr, 0 if back else -1)
-    if back:
-        change = (indicator.free_colour(h_free), indicator.metal_colour)
-    else:
-        change = (indicator.metal_colour, indicator.free_colour(h_free))
-    drift = None
-    if pH_drift and V_ep is not None:
-        drift = _pH_drift(system, totals, method, sample, V_ep if not back else V_ep, kw)
-    spec_end = _speciation(eqp, 1 if V_ep is not None else 0, prep, method, metals) if eqp is not None else {}
+    start_colour = indicator.metal_colour.split(" (")[0]
+    change = (indicator.free_colour(h_free), start_colour) if back else (start_colour, indicator.free_colour(h_free))
+    drift = _pH_drift(plan, V_ep) if (pH_drift and V_ep is not None and not back) else None
+    spec_end = _speciation(eqp, 1 if V_ep is not None else 0, prep, method, metals)
     return Titration(
         sample=sample, method=method, volume_mL=V, pM=pM, bound_fraction=bound_fraction, indicator_fractions=fr,
         indicator_colours=colours, turned=np.clip(turned, -1.0, 2.0), pH=np.full(len(V), method.pH), solids=solids,
-        equivalence_mL=float(V_eq_ref), endpoint_mL=V_ep, error_percent=error, sharpness_mL=sharp, pM_eq=pM_eq, pM_ep=pM_ep,
-        cotitrated=cotitrated, precipitates_start=pre_start, precipitates_end=pre_end, blocked_by=tuple(blocked),
-        indicator_usable=usable, colour_change=change, excess_mL=V_x, warnings=tuple(dict.fromkeys(warnings)),
-        assumptions=tuple(dict.fromkeys(assumptions)), speciation_start=spec_start, speciation_end=spec_end,
-        constants_used=tuple(system.uses()), pH_drift=drift)
+        equivalence_mL=float(plan.V_eq_ref), endpoint_mL=V_ep, error_percent=error, sharpness_mL=sharp, pM_eq=pM_eq,
+        pM_ep=pM_ep, cotitrated=cotitrated, precipitates_start=pre_start, precipitates_end=pre_end,
+        blocked_by=tuple(blocked), indicator_usable=usable, colour_change=change, excess_mL=plan.V_x,
+        warnings=tuple(dict.fromkeys(warnings)), assumptions=tuple(dict.fromkeys(assumptions)),
+        speciation_start=spec_start, speciation_end=spec_end, constants_used=tuple(system.uses()), pH_drift=drift)
 
 
 def _dominant_free_form(fractions: Mapping[str, Array], point: int) -> int:
@@ -570,28 +658,16 @@ def _merge(a: Equilibrium, b: Equilibrium, order: Array) -> Equilibrium:
                        iterations=a.iterations + b.iterations)
 
 
-def _freeze_inert(system, T, slow, method, prep, sample, V_x, kw):
-    """Remove the inert analyte complex formed on heating from the back-titration's equilibrium."""
-    comps = system.components
-    T = T.copy()
-    first = solve(system, T[:1], **kw)
-    for m in slow:
-        i, j = comps.index(m), comps.index(method.titrant)
-        bound = first.bound(m, method.titrant)[0] / max(first.totals[0, i], 1e-300)
-        T[:, j] -= T[:, i] * bound
-        T[:, i] *= (1 - bound)
-    return np.maximum(T, 0.0)
-
-
-def _pH_drift(system, totals, method, sample, V_ep, kw) -> float:
+def _pH_drift(plan: _Plan, V_ep: float) -> float:
     """pH change from the start to the end point with the pH free (buffer capacity)."""
+    system, method, sample = plan.system, plan.method, plan.sample
+    kw = dict(ionic_strength_M=sample.ionic_strength_M, temperature_C=sample.temperature_C)
     V = np.array([0.0, V_ep])
-    T = totals(V)
-    start = solve(system, T[:1], **kw)
+    T = plan.totals(V)
+    start = solve(system, T[:1], pH=method.pH, **kw)
     iH = system.index(H)
     T_H0 = float(start.c[0] @ system.nu[:, iH])  # proton total that gives the set pH at the start
     V0 = sample.volume_mL
-    d = V0 / (V0 + V)
-    T[:, iH] = T_H0 * d + TITRANT_PROTONS * method.titrant_conc_M * V / (V0 + V)
-    free = solve(system, T, pH=None, ionic_strength_M=kw["ionic_strength_M"], temperature_C=kw["temperature_C"])
+    T[:, iH] = T_H0 * V0 / (V0 + V) + TITRANT_PROTONS * method.titrant_conc_M * V / (V0 + V)
+    free = solve(system, T, pH=None, **kw)
     return float(free.pH[1] - free.pH[0])
