@@ -309,19 +309,22 @@ def _pcf(nu: Array, K: Array, T: Array, x: Array, active: Array, n_iter: int) ->
     return x
 
 
-def _residual(nu, nu_s, K, Ks, T, x, s, active_c, active_s):
-    c = 10.0 ** np.minimum(K + x @ nu.T, 300.0)
-    R = c @ nu + s @ nu_s - T
-    scale = c @ np.abs(nu) + s @ np.abs(nu_s) + np.abs(T) + 1e-300
-    Rs = np.where(active_c, R / scale, 0.0)
-    G = np.where(active_s, x @ nu_s.T + Ks, 0.0) if nu_s.shape[0] else np.zeros((len(x), 0))
-    return c, R, scale, Rs, G
+def _solve_fixed_I(nu, K, T, nu_s, Ks, x0, s0, active_s, free_pH_col, tol, labels, max_iter=300):
+    """Damped Newton on a convex function with the solids as linear constraints, for B points at once.
 
-
-def _solve_fixed_I(nu, K, T, nu_s, Ks, x0, s0, active_s, free_pH_col, tol, labels):
-    """Newton with an active set of solids, at fixed constants. Shapes: nu (S, n), K (B, S), T (B, n)."""
+    The mass balances are the stationarity conditions of the strictly convex function
+    f(x) = sum_s c_s(x) / ln 10 - T . x, with c_s = 10**(K_s + nu_s . x): its gradient is the residual
+    R = nu^T c - T and its Hessian ln10 nu^T diag(c) nu is the Jacobian. A solid is the linear constraint
+    SI_p(x) = nu_p . x + Ks_p <= 0; where it is active its amount is the constraint's multiplier. So each
+    iteration solves the KKT system of the active set, limits the step by the inactive solids (ratio test:
+    a solid that becomes saturated joins the set), and backtracks on f (Armijo), which makes the method
+    globally convergent; a solid whose amount turns negative leaves the set.
+    Shapes: nu (S, n), K (B, S), T (B, n), nu_s (P, n), Ks (B, P).
+    """
     B, n = T.shape
     P = nu_s.shape[0]
+    N = n + P
+    eye = np.eye(N)
     active_c = T > 0
     if free_pH_col is not None:
         active_c[:, free_pH_col] = True
@@ -329,120 +332,147 @@ def _solve_fixed_I(nu, K, T, nu_s, Ks, x0, s0, active_s, free_pH_col, tol, label
         x = np.where(active_c, np.log10(np.where(T > 0, T, 1.0)), LOG_MIN)
         if free_pH_col is not None:
             x[:, free_pH_col] = -7.0
-        x = _pcf(nu, K, T, x, active_c, 40)
-        x = np.where(active_c, x, LOG_MIN)
+        x = _pcf(nu, K, T, x, active_c, 30)
     else:
-        x = np.where(active_c, x0, LOG_MIN)
-    s = s0.copy()
-    act = active_s.copy()
+        x = x0.copy()
+    x = np.where(active_c, x, LOG_MIN)
+    W = active_s.copy() if P else np.zeros((B, 0), dtype=bool)
+    s = np.where(W, s0, 0.0) if P else np.zeros((B, 0))
     if P:
-        si = x @ nu_s.T + Ks
-        # start with the most supersaturated solid of each point present
-        for b in np.nonzero((si > 0).any(axis=1) & ~act.any(axis=1))[0]:
-            act[b, np.argmax(si[b])] = True
-    total_it = 0
-    for _round in range(4 * P + 3):
-        x, s, it, ok, resid = _newton(nu, K, T, nu_s, Ks, x, s, active_c, act, tol)
-        total_it += it
-        if not P:
+        x = _feasible(x, nu_s, Ks, active_c)
+    abs_nu, abs_nu_s = np.abs(nu), np.abs(nu_s)
+    done = np.zeros(B, dtype=bool)
+    it = 0
+    Rs = np.zeros((B, n))
+    for it in range(1, max_iter + 1):
+        idx = np.nonzero(~done)[0]
+        if not len(idx):
             break
-        changed = False
-        neg = act & (s < 0)
-        if neg.any():
-            for b in np.nonzero(neg.any(axis=1))[0]:
-                j = np.argmin(np.where(act[b], s[b], np.inf))
-                act[b, j] = False
-                s[b, j] = 0.0
-            changed = True
-        si = x @ nu_s.T + Ks
-        sup = ~act & (si > 1e-9)
-        rows = np.nonzero(sup.any(axis=1) & ~neg.any(axis=1))[0]
-        for b in rows:
-            act[b, np.argmax(np.where(sup[b], si[b], -np.inf))] = True
-            changed = True
-        if not changed:
-            break
-    s = np.where(act, s, 0.0)
-    _, _, _, Rs, G = _residual(nu, nu_s, K, Ks, T, x, s, active_c, act)
-    bad = (np.abs(Rs) > tol).any(axis=1) | (np.abs(G) > 1e-8).any(axis=1) | ~np.isfinite(x).all(axis=1)
-    if P:
-        si = x @ nu_s.T + Ks
-        bad |= (~act & (si > 1e-6)).any(axis=1) | (act & (s < -1e-14)).any(axis=1)
+        xb, Kb, Tb, acb = x[idx], K[idx], T[idx], active_c[idx]
+        c = 10.0 ** np.minimum(Kb + xb @ nu.T, 300.0)
+        R = np.where(acb, c @ nu - Tb, 0.0)
+        J = LN10 * np.einsum("sj,bs,sk->bjk", nu, c, nu, optimize=True)
+        Mx = np.zeros((len(idx), N, N))
+        Mx[:, :n, :n] = J
+        rhs = np.zeros((len(idx), N))
+        rhs[:, :n] = -R
+        if P:
+            Wb = W[idx]
+            Mx[:, :n, n:] = np.where(Wb[:, None, :], nu_s.T[None], 0.0)
+            Mx[:, n:, :n] = np.where(Wb[:, :, None], nu_s[None], 0.0)
+            Mx[:, n:, n:] = np.where(Wb[:, :, None], 0.0, eye[n:, n:][None])
+            rhs[:, n:] = np.where(Wb, -(xb @ nu_s.T + Ks[idx]), 0.0)
+        inactive = ~acb
+        Mx[:, :n, :] = np.where(inactive[:, :, None], 0.0, Mx[:, :n, :])
+        Mx[:, :, :n] = np.where(inactive[:, None, :], 0.0, Mx[:, :, :n])
+        Mx[:, :n, :n] += inactive[:, :, None] * np.eye(n)[None]
+        # row and column scaling by the component totals keeps the KKT matrix well conditioned
+        scale = c @ abs_nu + np.abs(Tb) + 1e-300
+        Dr = np.concatenate([1.0 / scale, np.ones((len(idx), P))], axis=1)
+        Mx_s = Mx * Dr[:, :, None]
+        try:
+            sol = np.linalg.solve(Mx_s, (rhs * Dr)[..., None])[..., 0]
+        except np.linalg.LinAlgError:
+            sol = np.stack([np.linalg.lstsq(m, r, rcond=None)[0] for m, r in zip(Mx_s, rhs * Dr)])
+        dx, lam = sol[:, :n], sol[:, n:]
+        dx = np.where(acb, dx, 0.0)
+        # solid amounts from the mass balances (weighted least squares over the active solids): more accurate
+        # than the KKT multipliers, which carry the conditioning of the scaled system
+        if P:
+            Aw = np.where(Wb[:, :, None], nu_s[None], 0.0) / scale[:, None, :]
+            G_ = Aw @ np.swapaxes(Aw, 1, 2) + (~Wb)[:, :, None] * np.eye(P)[None]
+            s[idx] = np.where(Wb, np.linalg.solve(G_, -(Aw @ (R / scale)[..., None]))[..., 0], 0.0)
+        # convergence: mass balances with the current solid amounts, and solids consistent
+        s_cur = s[idx]
+        Rtot = R + s_cur @ nu_s if P else R
+        scale_s = scale + (s_cur @ abs_nu_s if P else 0.0)
+        Rs_b = np.where(acb, Rtot / np.where(Tb > 0, Tb, scale_s), 0.0)  # relative to the total (1e-10)
+        Rs[idx] = Rs_b
+        conv = (np.abs(Rs_b) <= tol).all(axis=1)
+        if P:
+            SI = xb @ nu_s.T + Ks[idx]
+            conv &= (np.where(Wb, np.abs(SI), 0.0) <= 1e-9).all(axis=1)
+            conv &= (np.where(~Wb, SI, -1.0) <= 1e-9).all(axis=1)
+            neg = Wb & (s_cur < -1e-16 * np.maximum(1.0, np.abs(s_cur)))
+            drop = conv & neg.any(axis=1)
+            if drop.any():  # converged with a negative solid amount: that solid dissolves
+                for k in np.nonzero(drop)[0]:
+                    j = int(np.argmin(np.where(Wb[k], s_cur[k], np.inf)))
+                    W[idx[k], j] = False
+                    s[idx[k], j] = 0.0
+                conv &= ~drop
+        done[idx[conv]] = True
+        go = ~conv
+        if not go.any():
+            continue
+        g = idx[go]
+        dxg = dx[go]
+        # step: cap, ratio test against the inactive solids, then Armijo backtracking on f
+        big = np.max(np.abs(dxg), axis=1, initial=0.0)
+        alpha = np.where(big > 4.0, 4.0 / np.maximum(big, 1e-300), 1.0)
+        block = np.full(len(g), -1)
+        if P:
+            SIg = x[g] @ nu_s.T + Ks[g]
+            rate = dxg @ nu_s.T
+            with np.errstate(divide="ignore", invalid="ignore"):
+                lim = np.where(~W[g] & (rate > 1e-14), np.maximum(-SIg, 0.0) / rate, np.inf)
+            jmin = np.argmin(lim, axis=1)
+            amin = lim[np.arange(len(g)), jmin]
+            hit = amin < alpha
+            alpha = np.where(hit, amin, alpha)
+            block = np.where(hit, jmin, -1)
+        c_g = c[go]
+        slope = np.sum(np.where(active_c[g], R[go], 0.0) * dxg, axis=1)
+        near = np.max(np.abs(Rs_b[go]), axis=1) < 1e-5  # Newton region: f's rounding would fool Armijo
+        pending = ~near & (slope < 0)
+        for _ in range(40):
+            if not pending.any():
+                break
+            q = np.nonzero(pending)[0]
+            df = _delta_f(nu, c_g[q], T[g[q]], alpha[q, None] * dxg[q], active_c[g[q]])
+            ok = df <= 1e-4 * alpha[q] * slope[q]
+            pending[q[ok]] = False
+            alpha[q[~ok]] *= 0.5
+            block[q[~ok]] = -1
+        if pending.any():  # backtracking exhausted (rounding in f): take the capped Newton step
+            alpha[pending] = np.where(big[pending] > 4.0, 4.0 / np.maximum(big[pending], 1e-300), 1.0)
+        x[g] = np.where(active_c[g], x[g] + alpha[:, None] * dxg, LOG_MIN)
+        if P:
+            for k in np.nonzero(block >= 0)[0]:
+                W[g[k], block[k]] = True
+    bad = ~done | ~np.isfinite(x).all(axis=1)
     if bad.any():
         b = int(np.nonzero(bad)[0][0])
         label = labels[b] if labels is not None else f"point {b}"
-        raise ConvergenceError(f"equilibrium did not converge at {label} (of {B}): largest relative residual "
-                               f"{float(np.max(np.abs(Rs[b]))):.2e}, totals {T[b].tolist()}")
-    return x, s, act, total_it, float(np.max(np.abs(Rs))) if Rs.size else 0.0
+        raise ConvergenceError(f"equilibrium did not converge at {label} (of {B}) in {max_iter} iterations: largest relative "
+                               f"mass-balance residual {float(np.max(np.abs(Rs[b]))):.2e}, totals {T[b].tolist()}")
+    s = np.where(W, np.maximum(s, 0.0), 0.0) if P else s
+    return x, s, W, it, float(np.max(np.abs(Rs), initial=0.0))
 
 
-def _newton(nu, K, T, nu_s, Ks, x, s, active_c, active_s, tol, max_iter=200):
-    B, n = x.shape
-    P = nu_s.shape[0]
-    N = n + P
-    eye = np.eye(N)
-    todo = np.ones(B, dtype=bool)
-    it = 0
-    for it in range(1, max_iter + 1):
-        c, R, scale, Rs, G = _residual(nu, nu_s, K, Ks, T, x, s, active_c, active_s)
-        merit = np.sum(Rs ** 2, axis=1) + np.sum(G ** 2, axis=1)
-        conv = (np.abs(Rs) <= tol * 0.1).all(axis=1) & (np.abs(G) <= 1e-10).all(axis=1)
-        todo = ~conv
-        if not todo.any():
+def _delta_f(nu, c, T, dx, active):
+    """Change of the convex function f (see _solve_fixed_I) along a step, computed without cancellation.
+
+    f(x) = sum_s c_s / ln 10 - T . x, so f(x + dx) - f(x) = sum_s c_s expm1(ln10 nu_s . dx) / ln 10 - T . dx.
+    """
+    dlog = np.minimum(dx @ nu.T, 300.0)
+    return np.sum(c * np.expm1(LN10 * dlog), axis=1) / LN10 - np.sum(np.where(active, T * dx, 0.0), axis=1)
+
+
+def _feasible(x, nu_s, Ks, active_c):
+    """Lower metal free concentrations until no solid is supersaturated (a feasible start for the active set)."""
+    x = x.copy()
+    for _ in range(10):
+        SI = x @ nu_s.T + Ks
+        if not (SI > 0).any():
             break
-        idx = np.nonzero(todo)[0]
-        cb = c[idx]
-        J = np.zeros((len(idx), N, N))
-        J[:, :n, :n] = LN10 * np.einsum("sj,bs,sk->bjk", nu, cb, nu, optimize=True)
-        if P:
-            J[:, :n, n:] = nu_s.T[None]
-            J[:, n:, :n] = nu_s[None]
-        rhs = np.concatenate([R[idx], G[idx]], axis=1) if P else R[idx].copy()
-        # row scaling; inactive components and solids become identity rows
-        sc = np.concatenate([scale[idx], np.ones((len(idx), P))], axis=1)
-        J /= sc[:, :, None]
-        rhs /= sc
-        inactive = ~np.concatenate([active_c[idx], active_s[idx]], axis=1) if P else ~active_c[idx]
-        J = np.where(inactive[:, :, None] | inactive[:, None, :], 0.0, J)
-        J += inactive[:, :, None] * eye[None]
-        rhs = np.where(inactive, 0.0, rhs)
-        if P:
-            # an inactive solid keeps amount 0: its equation is s = 0
-            rhs[:, n:] = np.where(active_s[idx], rhs[:, n:], s[idx])
-        try:
-            d = -np.linalg.solve(J, rhs[..., None])[..., 0]
-        except np.linalg.LinAlgError:
-            d = -np.stack([np.linalg.lstsq(j, r, rcond=None)[0] for j, r in zip(J, rhs)])
-        dx, ds = d[:, :n], d[:, n:]
-        big = np.max(np.abs(dx), axis=1, initial=0.0)
-        f = np.where(big > 2.0, 2.0 / np.maximum(big, 1e-300), 1.0)
-        dx *= f[:, None]
-        ds *= f[:, None]
-        # backtracking line search on the scaled residual
-        x_old, s_old, m_old = x[idx], s[idx], merit[idx]
-        lam = np.ones(len(idx))
-        pending = np.ones(len(idx), dtype=bool)
-        x_new, s_new = x_old.copy(), s_old.copy()
-        for _ in range(12):
-            p = np.nonzero(pending)[0]
-            xt = x_old[p] + lam[p, None] * dx[p]
-            st = s_old[p] + lam[p, None] * ds[p] if P else s_old[p]
-            _, _, _, Rt, Gt = _residual(nu, nu_s, K[idx[p]], Ks[idx[p]], T[idx[p]], xt, st, active_c[idx[p]], active_s[idx[p]])
-            mt = np.sum(Rt ** 2, axis=1) + np.sum(Gt ** 2, axis=1)
-            good = (mt < m_old[p]) & np.isfinite(mt)
-            x_new[p[good]] = xt[good]
-            s_new[p[good]] = st[good]
-            pending[p[good]] = False
-            lam[p[~good]] *= 0.5
-            if not pending.any():
-                break
-        p = np.nonzero(pending)[0]  # accept a small step anyway so that no point stalls
-        x_new[p] = x_old[p] + lam[p, None] * dx[p]
-        if P:
-            s_new[p] = s_old[p] + lam[p, None] * ds[p]
-        x[idx] = np.where(active_c[idx], x_new, LOG_MIN)
-        if P:
-            s[idx] = np.where(active_s[idx], s_new, 0.0)
-    c, R, scale, Rs, G = _residual(nu, nu_s, K, Ks, T, x, s, active_c, active_s)
-    ok = (np.abs(Rs) <= tol).all(axis=1) & (np.abs(G) <= 1e-8).all(axis=1)
-    return x, s, it, ok, float(np.max(np.abs(Rs), initial=0.0))
+        for p in range(nu_s.shape[0]):
+            over = SI[:, p] > 0
+            if not over.any():
+                continue
+            metals = np.nonzero(nu_s[p] > 0)[0]
+            if not len(metals):
+                continue
+            j = metals[0]
+            x[over, j] -= (SI[over, p] + 1e-6) / nu_s[p, j]
+    return np.where(active_c, x, LOG_MIN)

@@ -26,7 +26,7 @@ from .reagents import catalogue
 
 Array = NDArray[np.float64]
 DROP_mL = 0.05  # one drop from a burette (common practice)
-GRADUAL_DROPS = 5.0  # an end point that takes more than 5 drops to turn is too gradual to see (common practice)
+GRADUAL_DROPS = 8.0  # an end point that takes more than 8 drops to turn is too gradual to see (common practice)
 TITRANT_PROTONS = 2  # titrant added as the disodium salt Na2H2Y (common practice)
 MASKED_THRESHOLD = 0.99  # a blocking metal counts as masked when 99 % of it is held away from the indicator
 
