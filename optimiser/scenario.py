@@ -20,7 +20,7 @@ from .reagents import HAZARD_NAMES, catalogue
 from .titration import Sample
 from .units import concentration_M, molarity, temperature_C, volume_mL
 
-OBJECTIVES = ("error", "selectivity", "sharpness", "hazard")
+OBJECTIVES = ("error", "selectivity", "sharpness", "hazard", "complexity")
 MODES = ("direct", "back")
 
 _SCHEMA: dict[str, Any] = {

@@ -3,7 +3,7 @@
 Decision variables: pH (continuous) with the buffer that holds it, the buffer ligand's dose, the titrant,
 up to two masking agents with log-scale doses, the indicator, and the mode (direct or back-titration with
 a Zn or Mg standard). Objectives (minimised): |titration error| [%], -selectivity margin [log units],
-end-point sharpness [mL], reagent hazard [0-4]. Constraints (G <= 0 feasible): the method is readable (an
+end-point sharpness [mL], reagent hazard [0-4] and bench complexity (:func:`complexity_of`). Constraints (G <= 0 feasible): the method is readable (an
 end point exists, the indicator changes colour at that pH and is not blocked), the analyte does not
 precipitate, the titre fits the burette, and the reagents suit the pH and the scenario's limits.
 
@@ -26,7 +26,7 @@ from pymoo.indicators.hv import HV
 from pymoo.optimize import minimize
 
 from .conditional import Conditions, conditional_constant, feasibility
-from .errors import MissingConstantError
+from .errors import ConvergenceError, MissingConstantError
 from .reagents import HAZARD_NAMES, catalogue
 from .scenario import OBJECTIVES, Scenario
 from .titration import Method, Titration, simulate, simulate_many
@@ -35,7 +35,7 @@ NONE = "none"
 ERROR_CAP = 100.0  # % assigned where no end point is seen
 SHARPNESS_CAP = 10.0  # mL
 MARGIN_CAP = 12.0  # log units (no interferent left, or far beyond any practical need)
-BUFFER_LOG_RANGE = (-2.0, 0.0)  # log10 M of the buffer ligand's total (0.01-1 M)
+BUFFER_LOG_RANGE = (-1.3, -0.3)  # log10 M of the buffer ligand's total: 0.05-0.5 M, the practical range (common practice)
 SEARCH_POINTS = 41  # coarse curve points per candidate during the search (the recommendation is re-run finer)
 
 
@@ -128,6 +128,13 @@ def hazard_of(c: Candidate) -> int:
     return max(levels)
 
 
+def complexity_of(c: Candidate) -> float:
+    """Bench complexity: one per masking agent, one for a back-titration (a second standard and a second
+    titre), a half for a titrant other than EDTA (fewer published methods, less certain constants). Our own
+    scale (common practice: simpler methods are preferred where they do the job)."""
+    return len(c.masking) + (1.0 if c.mode == "back" else 0.0) + (0.5 if c.titrant != "EDTA" else 0.0)
+
+
 def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) -> float | None:
     """delta log(cK') of the analyte over the strongest interferent still in solution, after masking.
 
@@ -194,8 +201,20 @@ class Evaluator:
             else:
                 to_sim.append(c)
         errors: list = []
-        sims = simulate_many(self.scenario.sample, [c.method(self.scenario) for c in to_sim], n_points=self.n_points,
-                             errors=errors) if to_sim else []
+        methods = [c.method(self.scenario) for c in to_sim]
+        try:
+            sims = simulate_many(self.scenario.sample, methods, n_points=self.n_points, errors=errors) if to_sim else []
+        except ConvergenceError:
+            # rare: retry one by one so that only the offending candidate is lost
+            sims, errors = [], []
+            for k, m in enumerate(methods):
+                local: list = []
+                try:
+                    sims.append(simulate_many(self.scenario.sample, [m], n_points=self.n_points, errors=local)[0])
+                except ConvergenceError as exc:
+                    sims.append(None)
+                    local = [(0, exc)]
+                errors += [(k, e) for _, e in local]
         self.n_simulated += len(to_sim)
         missing = {k: str(e) for k, e in errors}
         for k, (c, t) in enumerate(zip(to_sim, sims)):
@@ -254,11 +273,12 @@ class Evaluator:
         full = {"error": min(abs(err), ERROR_CAP) if err is not None else ERROR_CAP,
                 "selectivity": -min(margin, MARGIN_CAP) if margin is not None else -MARGIN_CAP,
                 "sharpness": min(sharp, SHARPNESS_CAP) if sharp is not None else SHARPNESS_CAP,
-                "hazard": float(hz)}
+                "hazard": float(hz), "complexity": complexity_of(c)}
         if margin is None and t is None:
             full["selectivity"] = 0.0
         F = tuple(full[k] for k in sc.objectives)
-        readable = 1.0 if any(x.startswith(("no end point", "indicator", "not simulated", "no log K", "no allowed", "hazard"))
+        readable = 1.0 if any(x.startswith(("no end point", "indicator", "not simulated", "no log K", "no allowed", "hazard",
+                                            "equilibrium did not converge"))
                               or "colour" in x or "not used below" in x for x in v) else -1.0
         chem = 1.0 if any("precipitates" in x or "too slowly" in x or "ten times" in x for x in v) else -1.0
         vol = 1.0 if any("burette" in x for x in v) else -1.0
@@ -374,8 +394,9 @@ def robustness(scenario: Scenario, e: Evaluation, half_width: float = 1.0, step:
     doses = {}
     dose_scans = {}
     for a, d in c.masking:
+        lo, hi = (math.log10(x) for x in catalogue().masking_agent(a).dose_range_M)
         lg = np.log10(d) + np.arange(-1.0, 1.0001, 0.1)
-        lg = np.union1d(lg, [np.log10(d)])
+        lg = np.union1d(lg[(lg >= lo - 1e-9) & (lg <= hi + 1e-9)], [np.log10(d)])
         ms = []
         for x in lg:
             mask = tuple((b, 10 ** x if b == a else dd) for b, dd in c.masking)

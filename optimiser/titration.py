@@ -257,6 +257,7 @@ class Titration:
     speciation_end: dict[str, dict[str, float]]
     constants_used: tuple = field(default=(), repr=False)
     pH_drift: float | None = None
+    masked_by_assumption: tuple[str, ...] = ()
 
     @property
     def sharpness_drops(self) -> float | None:
@@ -637,7 +638,8 @@ def _finish(plan: _Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array |
         pM_ep=pM_ep, cotitrated=cotitrated, precipitates_start=pre_start, precipitates_end=pre_end,
         blocked_by=tuple(blocked), indicator_usable=usable, colour_change=change, excess_mL=plan.V_x,
         warnings=tuple(dict.fromkeys(warnings)), assumptions=tuple(dict.fromkeys(assumptions)),
-        speciation_start=spec_start, speciation_end=spec_end, constants_used=tuple(system.uses()), pH_drift=drift)
+        speciation_start=spec_start, speciation_end=spec_end, constants_used=tuple(system.uses()), pH_drift=drift,
+        masked_by_assumption=tuple(m for m, c in prep.masked_by_assumption.items() if c > 0))
 
 
 def _dominant_free_form(fractions: Mapping[str, Array], point: int) -> int:

@@ -1,0 +1,178 @@
+"""Report figures as inline SVG (matplotlib, Agg backend), readable in greyscale.
+
+Each metal keeps one line style and marker in every figure, so the figures read without colour.
+"""
+from __future__ import annotations
+
+import io
+import re
+
+import matplotlib
+import matplotlib.ticker
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+
+from ..search import SearchResult  # noqa: E402
+
+STYLES = [("-", "o"), ("--", "s"), ("-.", "^"), (":", "D"), ((0, (5, 1, 1, 1)), "v"), ((0, (1, 1)), "P"), ((0, (8, 2)), "X")]
+COLOURS = ["#1b4f72", "#a04000", "#196f3d", "#6c3483", "#7b7d7d", "#b7950b", "#922b21"]
+
+plt.rcParams.update({"font.size": 9, "axes.grid": True, "grid.alpha": 0.3, "svg.fonttype": "none",
+                     "font.family": "sans-serif", "figure.dpi": 100})
+
+
+def _style(i: int) -> dict:
+    ls, mk = STYLES[i % len(STYLES)]
+    return {"linestyle": ls, "marker": mk, "color": COLOURS[i % len(COLOURS)], "markevery": 0.1, "markersize": 4}
+
+
+def _svg(fig) -> str:
+    buf = io.StringIO()
+    fig.savefig(buf, format="svg", bbox_inches="tight")
+    plt.close(fig)
+    text = buf.getvalue()
+    text = text[text.index("<svg"):]
+    # unique ids per figure so that several inline SVGs do not share clip-path ids
+    tag = f"f{abs(hash(text)) % 10**8}"
+    text = re.sub(r'id="([^"]+)"', lambda m: f'id="{tag}-{m.group(1)}"', text)
+    text = re.sub(r'url\(#([^)]+)\)', lambda m: f"url(#{tag}-{m.group(1)})", text)
+    text = re.sub(r'xlink:href="#([^"]+)"', lambda m: f'xlink:href="#{tag}-{m.group(1)}"', text)
+    return text
+
+
+def metal_order(result: SearchResult) -> list[str]:
+    s = result.scenario.sample
+    return list(s.analyte) + [m for m in s.metals if m not in s.analyte]
+
+
+def conditional_figure(result: SearchResult) -> str:
+    cc = result.conditional
+    pH = cc["pH"]
+    fig, ax = plt.subplots(figsize=(6.4, 3.6))
+    for i, m in enumerate(metal_order(result)):
+        st = _style(i)
+        role = "analyte" if m in result.scenario.sample.analyte else "interferent"
+        ax.plot(pH, cc[m], label=f"{m} ({role}), with the method's ligands", **st)
+        st2 = dict(st, linestyle=":", marker=None, alpha=0.6)
+        ax.plot(pH, cc[m + " (no ligands)"], label=f"{m}, no buffer or masking ligand", **st2)
+    if result.recommended is not None:
+        ax.axvline(result.recommended.candidate.pH, color="black", lw=1)
+        ax.annotate("recommended pH", (result.recommended.candidate.pH, ax.get_ylim()[1]), ha="left", va="top", fontsize=8)
+    ax.set_xlabel("pH")
+    titrant = result.recommended.candidate.titrant if result.recommended else "EDTA"
+    ax.set_ylabel(f"log K' (conditional, {titrant}) / log(L/mol)")
+    ax.legend(fontsize=7, ncol=2, loc="lower right")
+    return _svg(fig)
+
+
+def pareto_figure(result: SearchResult) -> str:
+    objs = list(result.objectives)
+    labels = {"error": "|error| / %", "selectivity": "-(selectivity margin) / log units", "sharpness": "sharpness / mL",
+              "hazard": "hazard level (0-4)", "complexity": "bench complexity"}
+    F = np.array([a.evaluation.F for a in result.front]) if result.front else np.zeros((0, len(objs)))
+    pairs = [(objs[0], o) for o in objs[1:]] if len(objs) > 1 else [(objs[0], objs[0])]
+    n = len(pairs)
+    fig, axes = plt.subplots(1, n, figsize=(2.6 * n, 2.6), squeeze=False)
+    strategies = sorted({a.strategy for a in result.front})
+    for ax, (a, b) in zip(axes[0], pairs):
+        ia, ib = objs.index(a), objs.index(b)
+        for k, strat in enumerate(strategies):
+            sel = [j for j, alt in enumerate(result.front) if alt.strategy == strat]
+            st = _style(k)
+            ax.scatter(F[sel, ia], F[sel, ib], marker=st["marker"], s=22, facecolors="none", edgecolors=st["color"], label=strat)
+        if result.recommended is not None:
+            f = result.recommended.F
+            ax.scatter([f[ia]], [f[ib]], marker="*", s=120, color="black", label="recommended")
+        ax.set_xlabel(labels[a])
+        ax.set_ylabel(labels[b])
+    axes[0][0].legend(fontsize=7, loc="best")
+    fig.tight_layout()
+    return _svg(fig)
+
+
+def titration_figure(result: SearchResult) -> str:
+    t = result.recommended_titration
+    fig, ax = plt.subplots(figsize=(6.4, 3.8))
+    order = [m for m in metal_order(result) if m in t.pM] + [m for m in t.pM if m not in metal_order(result)]
+    for i, m in enumerate(order):
+        ax.plot(t.volume_mL, t.pM[m], label=f"p{m}", **_style(i))
+    lo_hi = None
+    if t.endpoint_mL is not None and t.sharpness_mL is not None:
+        lo_hi = (t.endpoint_mL - t.sharpness_mL / 2, t.endpoint_mL + t.sharpness_mL / 2)
+        ax.axvspan(*lo_hi, color="0.85", label="indicator turning (10-90 %)")
+    ax.axvline(t.equivalence_mL, color="black", lw=1, linestyle="--", label=f"equivalence {t.equivalence_mL:.2f} mL")
+    if t.endpoint_mL is not None:
+        ax.axvline(t.endpoint_mL, color="black", lw=1.5, label=f"end point {t.endpoint_mL:.2f} mL")
+    ax2 = ax.twinx()
+    ax2.plot(t.volume_mL, np.clip(t.turned, 0, 1) * 100, color="0.4", lw=1, linestyle=(0, (2, 2)), label="indicator turned")
+    ax2.set_ylabel("indicator turned / %")
+    ax2.set_ylim(-5, 105)
+    ax2.grid(False)
+    back = t.method.mode == "back"
+    ax.set_xlabel(("back-titrant (" + t.method.back_metal + ")" if back else "titrant (" + t.method.titrant + ")") + " volume / mL")
+    ax.set_ylabel("pM = -log10 [M] (free metal ion)")
+    h1, l1 = ax.get_legend_handles_labels()
+    h2, l2 = ax2.get_legend_handles_labels()
+    ax.legend(h1 + h2, l1 + l2, fontsize=7, loc="best")
+    return _svg(fig)
+
+
+CATEGORIES = ["free", "bound to titrant", "bound to indicator", "masked", "bound to buffer ligand", "hydroxo complexes", "solid"]
+HATCHES = ["", "///", "...", "xx", "\\\\", "--", "oo"]
+
+
+def speciation_figure(result: SearchResult) -> str:
+    t = result.recommended_titration
+    rows = []
+    for when, spec in (("start", t.speciation_start), ("end point", t.speciation_end)):
+        for m in metal_order(result):
+            if m in spec:
+                rows.append((f"{m}, {when}", spec[m]))
+    fig, ax = plt.subplots(figsize=(6.4, 0.35 * len(rows) + 1.2))
+    y = np.arange(len(rows))
+    left = np.zeros(len(rows))
+    greys = ["#ffffff", "#1b4f72", "#a04000", "#196f3d", "#b7950b", "#7b7d7d", "#000000"]
+    for k, cat in enumerate(CATEGORIES):
+        vals = np.array([r[1].get(cat, 0.0) for r in rows]) * 100
+        ax.barh(y, vals, left=left, color=greys[k], edgecolor="black", hatch=HATCHES[k], label=cat, linewidth=0.5)
+        left += vals
+    ax.set_yticks(y)
+    ax.set_yticklabels([r[0] for r in rows])
+    ax.set_xlabel("share of the metal / %")
+    ax.set_xlim(0, 100)
+    ax.invert_yaxis()
+    ax.legend(fontsize=7, ncol=4, loc="upper center", bbox_to_anchor=(0.5, -0.25))
+    return _svg(fig)
+
+
+def robustness_figure(result: SearchResult) -> str:
+    target = result.scenario.targets.max_error_percent
+    n = 1 + len(result.robustness_dose_scan)
+    fig, axes = plt.subplots(1, n, figsize=(3.4 * n, 2.8), squeeze=False)
+    ax = axes[0][0]
+    grid, err = result.robustness_pH_scan
+    ax.plot(grid, err, marker="o", markersize=3, color="black")
+    ax.axhspan(-target, target, color="0.9", label=f"target +/- {target:g} %")
+    if result.robust_pH:
+        ax.axvspan(*result.robust_pH, color="0.75", alpha=0.6, label="robust window")
+    ax.axvline(result.recommended.candidate.pH, color="black", lw=1, linestyle="--", label="recommended")
+    ax.set_xlabel("pH")
+    ax.set_ylabel("predicted titration error / %")
+    ax.legend(fontsize=7)
+    for k, (agent, (dose, derr)) in enumerate(result.robustness_dose_scan.items(), start=1):
+        ax = axes[0][k]
+        ax.semilogx(dose * 1000, derr, marker="s", markersize=3, color="black")
+        ax.axhspan(-target, target, color="0.9")
+        if agent in result.robust_dose:
+            lo, hi = result.robust_dose[agent]
+            ax.axvspan(lo * 1000, hi * 1000, color="0.75", alpha=0.6)
+        d0 = dict(result.recommended.candidate.masking)[agent]
+        ax.axvline(d0 * 1000, color="black", lw=1, linestyle="--")
+        ax.xaxis.set_major_formatter(matplotlib.ticker.FormatStrFormatter("%g"))
+        ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
+        ax.set_xlabel(f"{agent} dose / (mmol/L)")
+        ax.set_ylabel("predicted titration error / %")
+    fig.tight_layout()
+    return _svg(fig)
