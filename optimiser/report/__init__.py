@@ -237,10 +237,10 @@ def safe_name(name: str) -> str:
     return out[:80] or "scenario"
 
 
-def write(result: SearchResult, out_dir: Path, json_text: str) -> tuple[Path, Path]:
-    """Write DIR/<name>.html and DIR/<name>.json atomically; returns both paths."""
+def write(result: SearchResult, out_dir: Path, json_text: str, base: str | None = None) -> tuple[Path, Path]:
+    """Write DIR/<name>.html and DIR/<name>.json atomically (name from the scenario unless given); returns both paths."""
     out_dir = Path(out_dir)
-    base = safe_name(result.scenario.name)
+    base = safe_name(base or result.scenario.name)
     html_path, json_path = out_dir / f"{base}.html", out_dir / f"{base}.json"
     html = render(result)
     write_atomic(json_path, json_text)

@@ -1,0 +1,151 @@
+"""Many scenarios in parallel processes: a report each, an index.html that compares them, a summary.csv."""
+from __future__ import annotations
+
+import csv
+import html
+import io
+import os
+import sys
+import traceback
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from dataclasses import dataclass
+from multiprocessing import get_context
+from pathlib import Path
+
+from .errors import OptimiserError
+from .results import dumps, to_json, write_atomic
+
+
+@dataclass(frozen=True)
+class BatchRow:
+    source: str
+    name: str
+    ok: bool
+    html: str = ""
+    json: str = ""
+    method: str = ""
+    error_percent: float | None = None
+    margin: float | None = None
+    hazard: str = ""
+    message: str = ""
+    seconds: float = 0.0
+
+
+def run_one(path: str, out_dir: str, seed: int, base: str | None = None) -> BatchRow:
+    """Load, search, report one scenario; never raises (a failure becomes a row with its message)."""
+    import time
+
+    from . import report
+    from .scenario import load
+    from .search import run_search
+    t0 = time.perf_counter()
+    name = Path(path).stem
+    try:
+        sc = load(path)
+        name = sc.name
+        result = run_search(sc, seed=seed)
+        html_path, json_path = report.write(result, Path(out_dir), dumps(to_json(result)), base=base)
+        e = result.recommended
+        if e is None:
+            return BatchRow(path, name, True, html_path.name, json_path.name, "no feasible method", message="no feasible method found",
+                            seconds=time.perf_counter() - t0)
+        c = e.candidate
+        method = (f"{c.titrant}, pH {c.pH:.2f} ({c.buffer}), {c.indicator}"
+                  + (f", masking {', '.join(a for a, _ in c.masking)}" if c.masking else "")
+                  + (f", back-titration with {c.back_metal}" if c.mode == "back" else ""))
+        from .reagents import HAZARD_NAMES
+        return BatchRow(path, name, True, html_path.name, json_path.name, method, e.error_percent, e.margin,
+                        HAZARD_NAMES[e.hazard], seconds=time.perf_counter() - t0)
+    except OptimiserError as exc:
+        return BatchRow(path, name, False, message=str(exc), seconds=time.perf_counter() - t0)
+    except Exception as exc:  # a bug must not stop the other scenarios; it is reported with its type
+        tb = traceback.format_exception_only(type(exc), exc)[-1].strip()
+        return BatchRow(path, name, False, message=f"internal error: {tb}", seconds=time.perf_counter() - t0)
+
+
+def _fmt(x, nd=2) -> str:
+    return "" if x is None else f"{x:.{nd}f}"
+
+
+def index_html(rows: list[BatchRow]) -> str:
+    """The side-by-side comparison page (self-contained, links relative to the output folder)."""
+    e = html.escape
+    body = []
+    for r in rows:
+        link = f'<a href="{e(r.html)}">{e(r.name)}</a>' if r.ok and r.html else e(r.name)
+        status = "ok" if r.ok else "failed"
+        data = f'<a href="{e(r.json)}">json</a>' if r.json else ""
+        body.append(f"<tr class='{status}'><td>{link}</td><td>{e(r.method)}</td><td class='n'>{_fmt(r.error_percent, 3)}</td>"
+                    f"<td class='n'>{_fmt(r.margin)}</td><td>{e(r.hazard)}</td><td>{status}</td><td>{e(r.message)}</td>"
+                    f"<td>{data}</td><td>{e(r.source)}</td></tr>")
+    return f"""<!DOCTYPE html>
+<html lang="en"><head><meta charset="utf-8"><title>Titration methods: batch comparison</title>
+<style>
+body {{ font: 14px/1.45 "Segoe UI", Arial, sans-serif; margin: 24px; color: #1d2433; }}
+table {{ border-collapse: collapse; width: 100%; }} th, td {{ border-bottom: 1px solid #d5d9e0; padding: 4px 6px; text-align: left; }}
+th {{ background: #f4f6f9; }} td.n {{ text-align: right; font-variant-numeric: tabular-nums; }}
+tr.failed td {{ background: #fdf1f0; }} h1 {{ font-size: 1.4em; }}
+</style></head><body>
+<h1>Titration methods: {len(rows)} scenarios compared</h1>
+<p>{sum(r.ok for r in rows)} succeeded, {sum(not r.ok for r in rows)} failed. Error: predicted titration error of the recommended
+method (%); margin: selectivity margin delta log(cK') over the strongest interferent left in solution (blank: none left).</p>
+<table><tr><th>Scenario</th><th>Recommended method</th><th>Error / %</th><th>Margin</th><th>Hazard</th><th>Status</th><th>Message</th><th>Data</th><th>File</th></tr>
+{''.join(body)}
+</table></body></html>
+"""
+
+
+def summary_csv(rows: list[BatchRow]) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(["scenario", "source", "status", "recommended_method", "predicted_error_percent", "selectivity_margin_log", "hazard",
+                "report", "json", "message", "seconds"])
+    for r in rows:
+        w.writerow([r.name, r.source, "ok" if r.ok else "failed", r.method, _fmt(r.error_percent, 4), _fmt(r.margin, 3), r.hazard,
+                    r.html, r.json, r.message, f"{r.seconds:.2f}"])
+    return buf.getvalue()
+
+
+def _progress(done: int, total: int, name: str) -> None:
+    width = 24
+    filled = int(width * done / max(total, 1))
+    sys.stderr.write(f"\r[{'#' * filled}{'-' * (width - filled)}] {done}/{total} scenarios  {name[:40]:<40}")
+    sys.stderr.flush()
+
+
+def run_batch(paths: list[Path], out_dir: Path, jobs: int | None = None, seed: int = 1, progress: bool = True) -> list[BatchRow]:
+    """Run every scenario (in parallel processes) and write the index and the summary; rows in input order."""
+    jobs = jobs or os.cpu_count() or 1
+    out_dir.mkdir(parents=True, exist_ok=True)
+    rows: dict[int, BatchRow] = {}
+    bases, seen = [], set()
+    for p in paths:  # reports are named after their files, made unique within the batch
+        from .report import safe_name
+        b = safe_name(Path(p).stem)
+        k = 2
+        while b in seen:
+            b = f"{safe_name(Path(p).stem)}-{k}"
+            k += 1
+        seen.add(b)
+        bases.append(b)
+    if progress:
+        _progress(0, len(paths), "")
+    if jobs == 1:
+        for k, p in enumerate(paths):
+            rows[k] = run_one(str(p), str(out_dir), seed, bases[k])
+            if progress:
+                _progress(len(rows), len(paths), rows[k].name)
+    else:
+        with ProcessPoolExecutor(max_workers=jobs, mp_context=get_context("fork")) as pool:
+            futures = {pool.submit(run_one, str(p), str(out_dir), seed, bases[k]): k for k, p in enumerate(paths)}
+            for f in as_completed(futures):
+                k = futures[f]
+                rows[k] = f.result()
+                if progress:
+                    _progress(len(rows), len(paths), rows[k].name)
+    if progress:
+        sys.stderr.write("\n")
+    ordered = [rows[k] for k in range(len(paths))]
+    write_atomic(out_dir / "index.html", index_html(ordered))
+    write_atomic(out_dir / "summary.csv", summary_csv(ordered))
+    return ordered
