@@ -93,20 +93,23 @@ class FormationConstant:
 
 
 def davies_A(temperature_C: ArrayLike) -> NDArray[np.float64]:
-    """Debye-Hueckel A parameter of water [kg^0.5 mol^-0.5] at a temperature [degC].
+    r"""Debye-Hueckel A parameter of water [kg^0.5 mol^-0.5] at a temperature [degC].
 
-    .. math:: A = 1.82483\\times10^6 \\sqrt{\\rho_w} (\\varepsilon_r T)^{-3/2}
+    .. math:: A = 1.82483\times10^6 \sqrt{\rho_w} (\varepsilon_r T)^{-3/2}
 
-    with the relative permittivity of water from Malmberg and Maryott (1956) and its density taken as 1.
+    with the relative permittivity of water from Malmberg and Maryott, J. Res. NBS 56 (1956) 1, and its
+    density [g/cm3] from the Thiesen-type formula rho = 1 - (t - 3.98)^2 (t + 283) / (503570 (t + 67.26)).
+    At 25 degC this gives 0.5108 (the often quoted 0.509 uses eps = 78.54; PHREEQC computes 0.5100).
 
     Examples
     --------
     >>> round(float(davies_A(25.0)), 4)
-    0.5114
+    0.5108
     """
     t = np.asarray(temperature_C, dtype=float)
     eps = 87.740 - 0.40008 * t + 9.398e-4 * t ** 2 - 1.410e-6 * t ** 3
-    return 1.82483e6 * (eps * (t + 273.15)) ** -1.5
+    rho = 1.0 - (t - 3.98) ** 2 * (t + 283.0) / (503570.0 * (t + 67.26))
+    return 1.82483e6 * np.sqrt(rho) * (eps * (t + 273.15)) ** -1.5
 
 
 def davies_f(ionic_strength_M: ArrayLike) -> NDArray[np.float64]:

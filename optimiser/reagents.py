@@ -20,7 +20,7 @@ def molar_mass(formula: str) -> float:
     """Molar mass [g/mol] of a formula such as ``"Na2S2O3(H2O)5"`` (periodictable).
 
     >>> round(molar_mass("Na2S2O3(H2O)5"), 2)
-    248.18
+    248.17
     """
     return float(periodictable.formula(formula).mass)
 

@@ -22,6 +22,11 @@ from optimiser.equilibrium import ChemicalSystem
 phreeqc = __import__("pytest").importorskip("phreeqc", reason="the phreeqc reference library is not installed")
 
 
+def zstr(z: int) -> str:
+    """PHREEQC's charge suffix: '', '+', '-', '+2', '-3'."""
+    return "" if z == 0 else ("+" if z == 1 else "-" if z == -1 else f"{z:+d}")
+
+
 def _names(system: ChemicalSystem, db_metals) -> dict[str, str]:
     out, im, il = {}, 0, 0
     for c in system.components:
@@ -47,8 +52,7 @@ def _formula(system: ChemicalSystem, row: np.ndarray, names: dict[str, str], cha
         parts.append("H" + (str(h) if h != 1 else ""))
     elif h < 0:
         parts.append(f"(OH){-h}" if h < -1 else "OH")
-    z = "" if charge == 0 else (f"{charge:+d}" if abs(charge) != 1 else ("+" if charge > 0 else "-"))
-    return "".join(parts) + z
+    return "".join(parts) + zstr(charge)
 
 
 def _reaction(system, row, names, product, charges) -> str:
@@ -56,9 +60,7 @@ def _reaction(system, row, names, product, charges) -> str:
     for c, v in zip(system.components, row):
         if c == H or v == 0:
             continue
-        z = charges[c]
-        zs = "" if z == 0 else (f"{z:+d}")
-        left.append((f"{v} " if v != 1 else "") + names[c] + zs)
+        left.append((f"{v} " if v != 1 else "") + names[c] + zstr(charges[c]))
     h = row[system.index(H)]
     right = ""
     if h > 0:
@@ -78,13 +80,12 @@ def database_text(system: ChemicalSystem, db, model: str) -> tuple[str, dict[str
              "O H2O 0 O 16.00", "O(0) O2 0 O", "O(-2) H2O 0 O", "Xx Xx+ 0 Xx 1.0", "Yy Yy- 0 Yy 1.0"]
     for c, nm in names.items():
         z = charges[c]
-        lines.append(f"{nm} {nm}{'' if z == 0 else f'{z:+d}'} 0 {nm} 100.0")
+        lines.append(f"{nm} {nm}{zstr(z)} 0 {nm} 100.0")
     lines.append("SOLUTION_SPECIES")
     master = [("H+ = H+", 1), ("e- = e-", 0), ("H2O = H2O", 0), ("Xx+ = Xx+", 1), ("Yy- = Yy-", 1)]
     for c, nm in names.items():
         z = charges[c]
-        s = f"{nm}{'' if z == 0 else f'{z:+d}'}"
-        master.append((f"{s} = {s}", z))
+        master.append((f"{nm}{zstr(z)} = {nm}{zstr(z)}", z))
     for eq, z in master:
         lines += [eq, "  log_k 0", (g_ion if z else g_neu).rstrip("\n")]
     lines += ["H2O = OH- + H+", f"  log_k {corrected([db.water], 0.0, 25.0)[0]:.10f}", g_ion.rstrip("\n"),
@@ -103,10 +104,10 @@ def database_text(system: ChemicalSystem, db, model: str) -> tuple[str, dict[str
         formula = _formula(system, row, names, 0)
         # dissolution: solid + n H+ = M + n H2O (hydroxides) or solid = M + n L
         h = row[system.index(H)]
-        diss = [f"{names[metal]}{charges[metal]:+d}"]
+        diss = [f"{names[metal]}{zstr(charges[metal])}"]
         for c, v in zip(system.components, row):
             if c != H and v and c != metal:
-                diss.append((f"{v} " if v != 1 else "") + names[c] + f"{charges[c]:+d}")
+                diss.append((f"{v} " if v != 1 else "") + names[c] + zstr(charges[c]))
         lhs = formula + (f" + {-h} H+" if h < 0 else "")
         rhs = " + ".join(diss) + (f" + {-h} H2O" if h < 0 else "")
         lines += [pname, f"  {lhs} = {rhs}", f"  log_k {-corrected([k], 0.0, 25.0)[0]:.10f}"]
@@ -128,18 +129,18 @@ def speciate(system: ChemicalSystem, db, totals: dict[str, float], pH: float, mo
     line = 10
     for i, c in enumerate(comps):
         z = db.charges[c]
-        punch.append(f"{line} PUNCH MOL(\"{names[c]}{'' if z == 0 else f'{z:+d}'}\")")
+        punch.append(f"{line} PUNCH MOL(\"{names[c]}{zstr(z)}\")")
         line += 10
     for i, c in enumerate(comps):
         punch.append(f"{line} PUNCH TOT(\"{names[c]}\")")
         line += 10
-    punch.append(f"{line} PUNCH MU, DH_A, ACT(\"H2O\"), -LA(\"H+\"), TOT(\"water\")")
+    punch.append(f"{line} PUNCH MU, DH_A, ACT(\"H2O\"), -LA(\"H+\"), TOT(\"water\"), TOT(\"Xx\"), TOT(\"Yy\")")
     line += 10
     solid_names = [names[s] for s in system.solids]
     for s in solid_names:
         punch.append(f"{line} PUNCH EQUI(\"{s}\")")
         line += 10
-    heads += " mu dha aw ph mw " + " ".join(f"s{i}" for i in range(len(solid_names)))
+    heads += " mu dha aw ph mw xx yy " + " ".join(f"s{i}" for i in range(len(solid_names)))
     eqp = ""
     if phases:
         eqp = "EQUILIBRIUM_PHASES 1\n  Fix_H+ -%.6f XxOH 10.0\n" % pH + "".join(f"  {s} 0 0\n" for s in solid_names)
@@ -158,7 +159,7 @@ USER_PUNCH 1
     vals = [out[k] for k in keys]
     n = len(comps)
     res = {"free": dict(zip(comps, vals[:n])), "total": dict(zip(comps, vals[n:2 * n]))}
-    mu, dha, aw, ph, mw = vals[2 * n:2 * n + 5]
-    res.update(ionic_strength=mu, A=dha, a_w=aw, pH=ph, mass_water=mw)
-    res["solids"] = dict(zip(system.solids, [v / mw for v in vals[2 * n + 5:]])) if phases else {}
+    mu, dha, aw, ph, mw, xx, yy = vals[2 * n:2 * n + 7]
+    res.update(ionic_strength=mu, A=dha, a_w=aw, pH=ph, mass_water=mw, inert_ions=xx + yy)
+    res["solids"] = dict(zip(system.solids, [v / mw for v in vals[2 * n + 7:]])) if phases else {}
     return res

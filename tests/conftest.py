@@ -1,0 +1,40 @@
+"""Shared fixtures. Figures use the Agg backend (no display)."""
+import matplotlib
+
+matplotlib.use("Agg")
+
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(Path(__file__).resolve().parent))  # the phreeqc bridge and the browser helper
+
+
+@pytest.fixture(scope="session")
+def scenarios_dir() -> Path:
+    return ROOT / "scenarios"
+
+
+TINY_SCENARIO = """
+name: tiny-calcium
+description: A calcium standard with a little magnesium (test fixture).
+sample: {volume: 50 mL, ionic_strength: 0.1 M, temperature: 25 degC}
+analyte: {metals: {Ca: 1.0 mmol/L}}
+interferents: {Mg: 0.2 mmol/L}
+titrant: {concentration: 0.01 M, burette: 25 mL}
+search:
+  pH: [9.0, 13.0]
+  titrants: [EDTA]
+  buffers: [ammonia, NaOH]
+  indicators: [EBT, calcon_carboxylic]
+  max_masking_agents: 0
+  modes: [direct]
+targets: {max_error_percent: 1.0}
+"""
+
+
+@pytest.fixture()
+def tiny_scenario_text() -> str:
+    return TINY_SCENARIO

@@ -1,0 +1,107 @@
+"""Properties of the full equilibrium solver: mass balances, robustness over pH 0-14 and 1e-10-1 M, phases."""
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from optimiser import equilibrium
+from optimiser.constants import H
+from optimiser.equilibrium import build_system, solve
+from optimiser.errors import ConvergenceError, InputError
+
+SYSTEMS = [(("Ca", "Mg", "Fe(III)", "Al"), ("EDTA", "NH3", "EBT")), (("Zn", "Cu", "Ni"), ("EDTA", "cyanide", "xylenol_orange")),
+           (("Ca", "Mg"), ("EGTA", "fluoride", "murexide")), (("Bi", "Pb", "Hg"), ("CDTA", "iodide", "acetate")),
+           (("Cu(I)", "Zn", "Cd"), ("DTPA", "thiosulfate", "citrate", "PAN"))]
+
+
+def mass_balance_error(eq):
+    s = eq.system
+    worst = 0.0
+    for i, c in enumerate(s.components):
+        if c == H:
+            continue
+        tot = eq.c @ s.nu[:, i] + (eq.solid_amount @ s.nu_solid[:, i] if s.solids else 0.0)
+        m = eq.totals[:, i] > 0
+        if m.any():
+            worst = max(worst, float(np.max(np.abs(tot[m] - eq.totals[m, i]) / eq.totals[m, i])))
+    return worst
+
+
+@pytest.mark.parametrize("metals,ligands", SYSTEMS, ids=["hardness", "cyanide", "EGTA", "acid", "copper(I)"])
+def test_random_batch_converges_everywhere(metals, ligands):
+    """2000 random points (pH 0-14, totals 1e-10 to 1 M, some absent): every mass balance to 1e-10, no NaN."""
+    rng = np.random.default_rng(7)
+    s = build_system(metals, ligands)
+    B = 2000
+    T = 10 ** rng.uniform(-10, 0, size=(B, len(s.components)))
+    T[:, -1] = 0.0
+    T[rng.random(T.shape) < 0.1] = 0.0
+    eq = solve(s, T, pH=rng.uniform(0, 14, B), ionic_strength_M=0.1)
+    assert np.isfinite(eq.c).all() and np.isfinite(eq.solid_amount).all()
+    assert mass_balance_error(eq) <= 1.0001e-10
+    assert (eq.solid_amount >= 0).all()
+    assert (eq.saturation_index <= 1e-6).all()  # no solid left supersaturated
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.floats(0, 14), st.floats(-10, 0), st.floats(-10, 0), st.floats(-6, 0))
+def test_mass_balances_hold(pH, log_m, log_y, log_l):
+    s = build_system(("Zn",), ("EDTA", "NH3"))
+    eq = solve(s, [10 ** log_m, 10 ** log_y, 10 ** log_l, 0.0], pH=pH, ionic_strength_M=0.1)
+    assert mass_balance_error(eq) <= 1.0001e-10
+
+
+def test_hydroxide_appears_and_dissolves_with_pH():
+    """Mg(OH)2 (active, log Ksp -9.2) is absent at pH 9, present at pH 11; with excess EDTA it dissolves again."""
+    s = build_system(("Mg",), ("EDTA",))
+    eq = solve(s, [[0.01, 0.0, 0.0]] * 3, pH=[9.0, 10.0, 11.0], ionic_strength_M=0.0)
+    assert eq.solid_amount[0, 0] == 0.0 and eq.solid_amount[2, 0] > 0.009
+    with_edta = solve(s, [0.01, 0.012, 0.0], pH=11.0, ionic_strength_M=0.0)
+    assert with_edta.solid_amount[0, 0] == 0.0
+    assert with_edta.saturation_index[0, 0] < 0
+
+
+def test_free_pH_follows_the_proton_balance():
+    """An ammonia buffer (0.1 M NH3 + 0.1 M NH4+) sits at about pH 9.2; adding 2 H+ per EDTA as Na2H2Y lowers it."""
+    s = build_system(("Ca",), ("EDTA", "NH3"))
+    buffer_only = solve(s, [0.0, 0.0, 0.2, 0.1], pH=None, ionic_strength_M=0.1)
+    assert buffer_only.pH[0] == pytest.approx(9.244 + 0.2, abs=0.15)  # pKa 9.244 at I = 0 (MINTEQA2), moved by Davies
+    acidified = solve(s, [0.0, 0.01, 0.2, 0.12], pH=None, ionic_strength_M=0.1)
+    assert acidified.pH[0] < buffer_only.pH[0]
+    assert mass_balance_error(acidified) <= 1.0001e-10
+
+
+def test_fixed_and_free_pH_agree():
+    """Solving at fixed pH, then giving the resulting proton total back with the pH free, returns the same pH."""
+    s = build_system(("Zn",), ("EDTA", "acetate"))
+    fixed = solve(s, [0.001, 0.0012, 0.1, 0.0], pH=5.3, ionic_strength_M=0.1)
+    T_H = float(fixed.c[0] @ s.nu[:, s.index(H)])
+    free = solve(s, [0.001, 0.0012, 0.1, T_H], pH=None, ionic_strength_M=0.1)
+    assert free.pH[0] == pytest.approx(5.3, abs=1e-8)
+
+
+def test_results_change_continuously_with_the_inputs():
+    s = build_system(("Ca", "Mg"), ("EDTA", "EBT"))
+    pH = np.linspace(9.9, 10.1, 21)
+    eq = solve(s, np.tile([0.002, 0.001, 0.0029, 2e-5, 0.0], (21, 1)), pH=pH, ionic_strength_M=0.1)
+    pCa = -np.log10(eq.free("Ca"))
+    assert np.max(np.abs(np.diff(pCa))) < 0.05
+
+
+def test_failure_names_the_point(monkeypatch):
+    """With too few iterations allowed the solver raises, naming the point; it never returns NaN."""
+    s = build_system(("Cu",), ("EDTA",))
+    original = equilibrium._solve_fixed_I
+    monkeypatch.setattr(equilibrium, "_solve_fixed_I", lambda *a, **k: original(*a, **{**k, "max_iter": 1}))
+    with pytest.raises(ConvergenceError, match="titrant volume 3.0000 mL"):
+        solve(s, [0.01, 0.0099999, 0.0], pH=4.0, point_labels=["titrant volume 3.0000 mL"])
+
+
+def test_bad_totals_are_refused():
+    s = build_system(("Ca",), ("EDTA",))
+    with pytest.raises(InputError):
+        solve(s, [-1.0, 0.01, 0.0], pH=10.0)
+    with pytest.raises(InputError):
+        solve(s, [0.01, 0.01], pH=10.0)
+    with pytest.raises(InputError):
+        solve(s, [0.01, 0.01, 0.0], pH=15.0)
