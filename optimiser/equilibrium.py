@@ -30,6 +30,7 @@ from .errors import ConvergenceError, InputError
 Array = NDArray[np.float64]
 LOG_MIN = -330.0  # log10 of an absent component's free concentration (underflows to 0)
 REL_TOL = 1e-10
+CONTINUATION_STRIDE = 8  # in a batch of at least 32 points, every 8th point is solved first (continuation)
 
 
 @dataclass(frozen=True)
@@ -261,9 +262,26 @@ def solve(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None = None
             log_cH = -pH_arr if pH_scale == "concentration" else -pH_arr + A_T * davies_f(I)
             K_eff = logK + nu[:, iH][None, :] * log_cH[:, None]
             Ks_eff = logKs + nu_s_all[:, iH][None, :] * log_cH[:, None]
-        x, solids_amt, active, it, resid = _solve_fixed_I(
-            nu[:, unknown], K_eff, T_tot[:, unknown], nu_s_all[:P_used][:, unknown], Ks_eff[:, :P_used], x,
-            solids_amt, active, free_pH_col=(unknown.index(iH) if free_pH else None), tol=tol, labels=point_labels)
+        args = (nu[:, unknown], K_eff, T_tot[:, unknown], nu_s_all[:P_used][:, unknown], Ks_eff[:, :P_used])
+        fcol = unknown.index(iH) if free_pH else None
+        if x is None and B >= 4 * CONTINUATION_STRIDE:
+            # continuation: solve every k-th point from scratch, then start each point from its nearest solved
+            # neighbour (points of a curve or population given in order are close to their neighbours)
+            sub = np.arange(0, B, CONTINUATION_STRIDE)
+            xs, ss, acts, it0, _ = _solve_fixed_I(*(a[sub] if a.ndim == 2 and a.shape[0] == B else a for a in args), None,
+                                                  solids_amt[sub], active[sub], free_pH_col=fcol, tol=tol,
+                                                  labels=None if point_labels is None else [point_labels[i] for i in sub])
+            # linear interpolation (in log concentration, along the batch order) between the solved points
+            pos = np.arange(B) / CONTINUATION_STRIDE
+            lo = np.minimum(np.floor(pos).astype(int), len(sub) - 1)
+            hi = np.minimum(lo + 1, len(sub) - 1)
+            w = np.clip(pos - lo, 0.0, 1.0)[:, None]
+            both = (xs[lo] > LOG_MIN + 1) & (xs[hi] > LOG_MIN + 1)
+            x = np.where(both, (1 - w) * xs[lo] + w * xs[hi], np.where(w < 0.5, xs[lo], xs[hi]))
+            solids_amt, active = ss[lo], acts[lo]
+            iterations += it0
+        x, solids_amt, active, it, resid = _solve_fixed_I(*args, x, solids_amt, active, free_pH_col=fcol, tol=tol,
+                                                          labels=point_labels)
         iterations += it
         if not auto_I:
             break
@@ -299,7 +317,7 @@ def _pcf(nu: Array, K: Array, T: Array, x: Array, active: Array, n_iter: int) ->
     neg = np.where(nu < 0, -nu, 0.0)
     nmax = np.maximum(pos.max(axis=0), 1.0)
     for _ in range(n_iter):
-        c = 10.0 ** np.minimum(K + x @ nu.T, 300.0)
+        c = np.exp(LN10 * np.minimum(K + x @ nu.T, 300.0))
         S_pos = c @ pos
         S_neg = c @ neg
         target = T + S_neg
@@ -332,12 +350,17 @@ def _solve_fixed_I(nu, K, T, nu_s, Ks, x0, s0, active_s, free_pH_col, tol, label
         x = np.where(active_c, np.log10(np.where(T > 0, T, 1.0)), LOG_MIN)
         if free_pH_col is not None:
             x[:, free_pH_col] = -7.0
-        x = _pcf(nu, K, T, x, active_c, 30)
+        x = _pcf(nu, K, T, x, active_c, 15)
     else:
-        x = x0.copy()
+        # a guess from another point (continuation or the previous ionic strength): components absent there but
+        # present here start from their totals, then a few sweeps fit the guess to this point's totals
+        x = np.where(active_c & (x0 <= LOG_MIN + 1.0), np.log10(np.where(T > 0, T, 1.0)), x0)
+        x = _pcf(nu, K, T, np.where(active_c, x, LOG_MIN), active_c, 3)
     x = np.where(active_c, x, LOG_MIN)
-    W = active_s.copy() if P else np.zeros((B, 0), dtype=bool)
-    s = np.where(W, s0, 0.0) if P else np.zeros((B, 0))
+    # the active set starts empty from a feasible point (solids join through the ratio test), so that a guess
+    # from another point cannot impose a solid that does not belong here
+    W = np.zeros((B, P), dtype=bool)
+    s = np.zeros((B, P))
     if P:
         x = _feasible(x, nu_s, Ks, active_c)
     abs_nu, abs_nu_s = np.abs(nu), np.abs(nu_s)
@@ -349,26 +372,27 @@ def _solve_fixed_I(nu, K, T, nu_s, Ks, x0, s0, active_s, free_pH_col, tol, label
         if not len(idx):
             break
         xb, Kb, Tb, acb = x[idx], K[idx], T[idx], active_c[idx]
-        c = 10.0 ** np.minimum(Kb + xb @ nu.T, 300.0)
+        c = np.exp(LN10 * np.minimum(Kb + xb @ nu.T, 300.0))
         R = np.where(acb, c @ nu - Tb, 0.0)
-        J = LN10 * np.einsum("sj,bs,sk->bjk", nu, c, nu, optimize=True)
-        Mx = np.zeros((len(idx), N, N))
-        Mx[:, :n, :n] = J
-        rhs = np.zeros((len(idx), N))
-        rhs[:, :n] = -R
+        J = LN10 * ((nu.T[None, :, :] * c[:, None, :]) @ nu)
+        inactive = ~acb
         if P:
             Wb = W[idx]
+            Mx = np.zeros((len(idx), N, N))
+            Mx[:, :n, :n] = J
             Mx[:, :n, n:] = np.where(Wb[:, None, :], nu_s.T[None], 0.0)
             Mx[:, n:, :n] = np.where(Wb[:, :, None], nu_s[None], 0.0)
             Mx[:, n:, n:] = np.where(Wb[:, :, None], 0.0, eye[n:, n:][None])
-            rhs[:, n:] = np.where(Wb, -(xb @ nu_s.T + Ks[idx]), 0.0)
-        inactive = ~acb
-        Mx[:, :n, :] = np.where(inactive[:, :, None], 0.0, Mx[:, :n, :])
-        Mx[:, :, :n] = np.where(inactive[:, None, :], 0.0, Mx[:, :, :n])
-        Mx[:, :n, :n] += inactive[:, :, None] * np.eye(n)[None]
-        # row and column scaling by the component totals keeps the KKT matrix well conditioned
+            rhs = np.concatenate([-R, np.where(Wb, -(xb @ nu_s.T + Ks[idx]), 0.0)], axis=1)
+        else:
+            Mx, rhs = J, -R
+        if inactive.any():  # an absent component keeps its value: identity row and column
+            Mx[:, :n, :] = np.where(inactive[:, :, None], 0.0, Mx[:, :n, :])
+            Mx[:, :, :n] = np.where(inactive[:, None, :], 0.0, Mx[:, :, :n])
+            Mx[:, :n, :n] += inactive[:, :, None] * np.eye(n)[None]
+        # row scaling by the component totals keeps the KKT matrix well conditioned
         scale = c @ abs_nu + np.abs(Tb) + 1e-300
-        Dr = np.concatenate([1.0 / scale, np.ones((len(idx), P))], axis=1)
+        Dr = np.concatenate([1.0 / scale, np.ones((len(idx), P))], axis=1) if P else 1.0 / scale
         Mx_s = Mx * Dr[:, :, None]
         try:
             sol = np.linalg.solve(Mx_s, (rhs * Dr)[..., None])[..., 0]
@@ -380,8 +404,10 @@ def _solve_fixed_I(nu, K, T, nu_s, Ks, x0, s0, active_s, free_pH_col, tol, label
         # than the KKT multipliers, which carry the conditioning of the scaled system
         if P:
             Aw = np.where(Wb[:, :, None], nu_s[None], 0.0) / scale[:, None, :]
+            norm = np.maximum(np.max(np.abs(Aw), axis=(1, 2)), 1e-300)[:, None, None]
+            Aw = Aw / norm  # s is unchanged by a common scale; this keeps G from underflowing
             G_ = Aw @ np.swapaxes(Aw, 1, 2) + (~Wb)[:, :, None] * np.eye(P)[None]
-            s[idx] = np.where(Wb, np.linalg.solve(G_, -(Aw @ (R / scale)[..., None]))[..., 0], 0.0)
+            s[idx] = np.where(Wb, np.linalg.solve(G_, -(Aw @ (R / scale / norm[:, :, 0])[..., None]))[..., 0], 0.0)
         # convergence: mass balances with the current solid amounts, and solids consistent
         s_cur = s[idx]
         Rtot = R + s_cur @ nu_s if P else R

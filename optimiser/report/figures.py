@@ -152,6 +152,11 @@ def robustness_figure(result: SearchResult) -> str:
     n = 1 + len(result.robustness_dose_scan)
     fig, axes = plt.subplots(1, n, figsize=(3.4 * n, 2.8), squeeze=False)
     ax = axes[0][0]
+    if result.robustness_pH_scan is None:
+        ax.text(0.5, 0.5, "robustness scan not run", ha="center", va="center", transform=ax.transAxes)
+        ax.set_xlabel("pH")
+        ax.set_ylabel("predicted titration error / %")
+        return _svg(fig)
     grid, err = result.robustness_pH_scan
     ax.plot(grid, err, marker="o", markersize=3, color="black")
     ax.axhspan(-target, target, color="0.9", label=f"target +/- {target:g} %")

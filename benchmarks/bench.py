@@ -1,0 +1,199 @@
+"""Benchmarks: print figures and ratios against baselines measured in the same run (no timed assertions anywhere).
+
+    python benchmarks/bench.py solver   # 500-point curve: our vectorised solver vs scipy point by point vs phreeqc
+    python benchmarks/bench.py search   # search on the demo scenario vs an exhaustive grid at equal hypervolume
+    python benchmarks/bench.py batch    # batch --jobs 2 vs --jobs 1 over the example scenarios
+    python benchmarks/bench.py all
+"""
+from __future__ import annotations
+
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT / "tests"))
+
+
+def best_of(fn, repeat=3):
+    times, out = [], None
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        out = fn()
+        times.append(time.perf_counter() - t0)
+    return min(times), out
+
+
+def bench_solver(n=500):
+    from scipy.optimize import root
+
+    from optimiser.constants import H
+    from optimiser.equilibrium import build_system, solve
+    metals, ligands = ("Ca", "Mg", "Zn"), ("EDTA", "NH3", "EBT")
+    s = build_system(metals, ligands, solids=False)
+    V0, c = 50.0, {"Ca": 0.002, "Mg": 0.001, "Zn": 0.0005}
+    V = np.linspace(0, 1.5 * sum(c.values()) * V0 / 0.01, n)
+    d = V0 / (V0 + V)
+    T = np.zeros((n, len(s.components)))
+    for m, x in c.items():
+        T[:, s.index(m)] = x * d
+    T[:, s.index("EDTA")] = 0.01 * V / (V0 + V)
+    T[:, s.index("NH3")] = 0.1 * d
+    T[:, s.index("EBT")] = 2e-5 * d
+    pH = 10.0
+    print(f"solver: {n}-point titration curve, metals {metals}, ligands {ligands}, {len(s.species)} species, pH {pH}, ideal")
+
+    t_ours, eq = best_of(lambda: solve(s, T, pH=pH, ionic_strength_M=0.0))
+    free_ours = eq.c[:, :len(s.components) - 1]
+
+    # scipy, point by point, as a careful user would write it: unknowns log10 of the free concentrations,
+    # residuals log10(computed total / given total) (absent components dropped), analytic Jacobian, hybr root
+    # finder, each point started from the previous point's solution (continuation along the curve)
+    iH = s.index(H)
+    logK, _ = s.log_K(np.array([0.0]), np.array([25.0]))
+    K = logK[0] + s.nu[:, iH] * (-pH)
+    nu_all = s.nu[:, :iH].astype(float)
+
+    def scipy_curve():
+        out, fails = np.zeros((n, iH)), 0
+        x_prev = None
+        for k in range(n):
+            act = T[k, :iH] > 0
+            nu = nu_all[:, act]
+            tot = T[k, :iH][act]
+            rows = np.all(nu_all[:, ~act] == 0, axis=1)  # species made only of present components
+            nu, Kk = nu[rows], K[rows]
+
+            def f(x):
+                cs = 10.0 ** np.minimum(Kk + nu @ x, 300)
+                return np.log10(cs @ nu) - np.log10(tot)
+
+            def jac(x):
+                cs = 10.0 ** np.minimum(Kk + nu @ x, 300)
+                return ((nu.T * cs) @ nu) / (cs @ nu)[:, None]
+            x0 = np.log10(tot) if x_prev is None or x_prev.shape != tot.shape else x_prev
+            r = root(f, x0, jac=jac, method="hybr", options={"xtol": 1e-14})
+            cs = 10.0 ** (Kk + nu @ r.x)
+            if np.max(np.abs(cs @ nu / tot - 1)) > 1e-10:
+                fails += 1
+            x_prev = r.x
+            out[k, act] = 10.0 ** r.x
+        return out, fails
+    t_scipy, (free_scipy, fails) = best_of(scipy_curve, repeat=1)
+    mask = T[:, :iH] > 0
+    dev_scipy = np.max(np.abs(free_scipy[mask] / free_ours[mask] - 1))
+
+    t_phreeqc, dev_phreeqc = None, None
+    try:
+        import phreeqc
+        import phreeqc_bridge as pb
+        from optimiser.constants import database
+        text, names = pb.database_text(s, database(), "ideal")
+        p = phreeqc.Phreeqc()
+        assert p.LoadDatabaseString(text) == 0
+        comps = [x for x in s.components if x != H]
+        blocks = []
+        for k in range(n):
+            sol = "\n".join(f"  {names[x]} {T[k, s.index(x)]:.15e}" for x in comps if T[k, s.index(x)] > 0)
+            blocks.append(f"SOLUTION {k + 1}\n  units mol/kgw\n  pH {pH}\n{sol}\n")
+        punch = " ".join(f'MOL("{names[x]}{pb.zstr(database().charges[x])}"),' for x in comps).rstrip(",")
+        inp = "".join(blocks) + ("SELECTED_OUTPUT 1\n  -reset false\nUSER_PUNCH 1\n  -headings " + " ".join(f"f{i}" for i in range(len(comps)))
+                                 + f"\n  10 PUNCH {punch}\nEND\n")
+        # SELECTED_OUTPUT must come before the solutions to punch each one
+        inp = ("SELECTED_OUTPUT 1\n  -reset false\nUSER_PUNCH 1\n  -headings " + " ".join(f"f{i}" for i in range(len(comps)))
+               + f"\n  10 PUNCH {punch}\n" + "".join(blocks) + "END\n")
+
+        def run():
+            assert p.RunString(inp) == 0, p.GetErrorString()
+            return p.GetSelectedOutput()
+        t_phreeqc, outp = best_of(run)
+        fp = np.array([outp[f"f{i}"] for i in range(len(comps))]).T
+        # phreeqc keeps water activity (a_w < 1) in the hydroxo species; compare the metals' and ligands' free values
+        m2 = mask & (fp > 1e-90)
+        dev_phreeqc = np.max(np.abs(fp[m2] / free_ours[m2] - 1))
+    except ImportError:
+        pass
+    print(f"  ours (one vectorised call):    {t_ours * 1000:8.1f} ms")
+    print(f"  scipy root, point by point:    {t_scipy * 1000:8.1f} ms  ({fails} points not converged; "
+          f"max rel. difference from ours {dev_scipy:.1e})  ratio {t_scipy / t_ours:6.1f} x")
+    if t_phreeqc is not None:
+        print(f"  phreeqc, {n} solutions, 1 run: {t_phreeqc * 1000:8.1f} ms  (max rel. difference from ours {dev_phreeqc:.1e}, "
+              f"water activity included there)  ratio {t_phreeqc / t_ours:6.1f} x")
+
+
+def bench_search():
+    from optimiser.report import write
+    from optimiser.results import dumps, to_json
+    from optimiser.scenario import demo, parse
+    from optimiser.search import front_hypervolumes, grid_candidates, grid_search, run_search
+    sc = demo()
+    t0 = time.perf_counter()
+    r = run_search(sc, seed=1)
+    t_search = time.perf_counter() - t0
+    with tempfile.TemporaryDirectory() as d:
+        t1 = time.perf_counter()
+        write(r, Path(d), dumps(to_json(r)))
+        t_report = time.perf_counter() - t1
+    print(f"search on the demo scenario: {r.evaluations} evaluations, {t_search:.1f} s search (incl. robustness), "
+          f"{t_report:.1f} s report, front {len(r.front)}")
+    for name, text in (("demo (masking limited to TEA, cyanide, fluoride)", None), ("zinc beside copper (small)", ZINC_SMALL)):
+        sc2 = demo() if text is None else parse(text, "zinc-small.yaml")
+        if text is None:  # a grid over the full demo space has ~10^6 points; restrict masking to keep it exhaustive here
+            from dataclasses import replace
+            sc2 = replace(sc2, search=replace(sc2.search, masking=("TEA", "cyanide", "fluoride"), titrants=("EDTA", "CDTA"),
+                                              indicators=("EBT", "calmagite", "murexide")))
+        grid = grid_candidates(sc2, pH_step=0.05, buffer_levels=3, dose_levels=5)
+        g_evals, t_grid = grid_search(sc2, grid)
+        # search budgets growing until 99 % of the grid's hypervolume is reached
+        for n_gen in (5, 10, 15, 25, 40):
+            t0 = time.perf_counter()
+            rr = run_search(sc2, seed=1, n_gen=n_gen, with_robustness=False)
+            t_s = time.perf_counter() - t0
+            hv_s, hv_g = front_hypervolumes([a.evaluation for a in rr.front], g_evals)
+            if hv_s >= 0.99 * hv_g:
+                break
+        print(f"  {name}: grid {len(grid)} evaluations in {t_grid:.1f} s; search {rr.evaluations} evaluations in {t_s:.1f} s "
+              f"reaches {100 * hv_s / hv_g:.1f} % of the grid hypervolume: evaluation ratio {rr.evaluations / len(grid):.3f}, "
+              f"time ratio {t_s / t_grid:.3f}")
+
+
+ZINC_SMALL = """
+name: zinc-small
+sample: {volume: 25 mL}
+analyte: {metals: {Zn: 2 mmol/L}}
+interferents: {Cu: 1 mmol/L}
+titrant: {concentration: 0.01 M}
+search:
+  pH: [4.5, 6.5]
+  titrants: [EDTA]
+  buffers: [acetate, hexamine]
+  masking: [thiosulfate]
+  max_masking_agents: 1
+  indicators: [xylenol_orange]
+  modes: [direct]
+"""
+
+
+def bench_batch():
+    from optimiser.batch import run_batch
+    from optimiser.scenario import find_scenarios
+    paths = find_scenarios([ROOT / "scenarios"])
+    times = {}
+    for jobs in (1, 2):
+        with tempfile.TemporaryDirectory() as d:
+            t0 = time.perf_counter()
+            rows = run_batch(paths, Path(d), jobs=jobs, progress=False)
+            times[jobs] = time.perf_counter() - t0
+            assert all(r.ok for r in rows)
+    print(f"batch over {len(paths)} example scenarios: --jobs 1 {times[1]:.1f} s, --jobs 2 {times[2]:.1f} s, "
+          f"speed-up {times[1] / times[2]:.2f} x")
+
+
+if __name__ == "__main__":
+    which = sys.argv[1] if len(sys.argv) > 1 else "all"
+    for name, fn in (("solver", bench_solver), ("search", bench_search), ("batch", bench_batch)):
+        if which in (name, "all"):
+            fn()

@@ -1,0 +1,190 @@
+"""main([...]) for every command, including every bad-input path (exit status 2, one clear line, no traceback)."""
+import json
+import re
+from html.parser import HTMLParser
+from pathlib import Path
+
+import pytest
+
+from optimiser.cli import main
+
+
+def run(capsys, *argv):
+    code = main(list(argv))
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_conditional_text_and_json(capsys):
+    code, out, err = run(capsys, "conditional", "Ca", "--pH", "4", "10", "--complex", "0.0267M")
+    assert code == 0 and "log K_cond" in out and "free Ca" in out
+    code, out, _ = run(capsys, "conditional", "Zn", "--pH", "10", "--ligand", "NH3=0.1M", "--json")
+    doc = json.loads(out)
+    for key in ("metal", "titrant", "pH", "log_alpha_Y", "log_alpha_M", "log_K", "log_K_conditional"):
+        assert key in doc
+    assert doc["metal"] == "Zn" and len(doc["log_K_conditional"]) == 1
+    assert doc["log_alpha_M"][0] > 4  # ammine complexes (Harvey constants): alpha_M(NH3) ~ 10^4.6 at 0.1 M total NH3
+    code, out, _ = run(capsys, "conditional", "Ca", "--pH", "10", "--complex", "0.01 M", "--json")
+    assert "free_metal_M" in json.loads(out)
+
+
+@pytest.mark.parametrize("argv,needle", [
+    (("conditional", "Unobtainium", "--pH", "10"), "known metals: Al, Ba"),
+    (("conditional", "Ca", "--pH", "15"), "pH must be between 0 and 14"),
+    (("conditional", "Ca", "--pH", "ten"), "pH must be a number"),
+    (("conditional", "Ca", "--pH", "10", "--ligand", "NH3=-1M"), "cannot be negative"),
+    (("conditional", "Ca", "--pH", "10", "--ligand", "NH3=0.1 blorp"), "unknown unit"),
+    (("conditional", "Ca", "--pH", "10", "--ligand", "NH3"), "NAME=CONCENTRATION"),
+    (("conditional", "Ca", "--pH", "10", "--ligand", "XYZ=0.1M"), "unknown ligand"),
+    (("conditional", "Ca", "--titrant", "NTA", "--pH", "10"), "unknown titrant"),
+    (("conditional", "Ca", "--pH", "10", "--ionic-strength", "5"), "ionic strength"),
+    (("constants", "nothing"), "unknown name 'nothing'"),
+    (("frobnicate",), "invalid choice"),
+    (("conditional", "Ca"), "required"),
+])
+def test_bad_input_exits_2_with_one_line(capsys, argv, needle):
+    code, out, err = run(capsys, *argv)
+    assert code == 2
+    assert needle in err
+    assert "Traceback" not in err and len(err.strip().splitlines()) == 1
+
+
+def test_constants(capsys):
+    code, out, _ = run(capsys, "constants")
+    assert code == 0 and "metals:" in out and "indicators:" in out
+    code, out, _ = run(capsys, "constants", "Cu")
+    assert code == 0 and "Cu + EDTA = CuEDTA" in out and "sources:" in out and "NIST" in out
+    code, out, _ = run(capsys, "constants", "EBT", "--json")
+    doc = json.loads(out)
+    assert doc["name"] == "EBT" and any(r["from_memory"] for r in doc["constants"])
+
+
+def test_simulate_text_and_json(capsys, scenarios_dir):
+    sc = str(scenarios_dir / "hardness_iron_aluminium.yaml")
+    code, out, _ = run(capsys, "simulate", sc, "--pH", "10", "--titrant", "EDTA", "--indicator", "EBT", "--masking", "TEA=10mM")
+    assert code == 0 and "end point" in out and "error" in out
+    code, out, _ = run(capsys, "simulate", sc, "--pH", "10", "--titrant", "EDTA", "--indicator", "EBT",
+                       "--buffer", "ammonia=0.1M", "--json")
+    doc = json.loads(out)
+    for key in ("equivalence", "endpoint", "error_percent", "sharpness_mL", "cotitrated", "precipitates", "warnings", "curve"):
+        assert key in doc
+    assert set(doc["equivalence"]) == {"volume_mL", "pM"} and set(doc["curve"]) >= {"volume_mL", "pM"}
+    assert len(doc["curve"]["volume_mL"]) == len(doc["curve"]["pM"]["Ca"])
+    assert doc["blocked_by"] == ["Fe(III)", "Al"]  # unmasked Fe(III) and Al block EBT (common practice)
+
+
+@pytest.mark.parametrize("argv,needle", [
+    (("--pH", "10", "--titrant", "EDTA", "--indicator", "Nonexistent Blue"), "unknown indicator"),
+    (("--pH", "10", "--titrant", "EDTA", "--indicator", "EBT", "--masking", "arsenic=1mM"), "unknown masking agent"),
+    (("--pH", "7.2", "--titrant", "EDTA", "--indicator", "EBT"), "no buffer in the database holds pH 7.2"),
+    (("--pH", "10", "--titrant", "EDTA", "--indicator", "EBT", "--buffer", "ammonia=-2M"), "cannot be negative"),
+])
+def test_simulate_bad_input(capsys, scenarios_dir, argv, needle):
+    code, _, err = run(capsys, "simulate", str(scenarios_dir / "zinc_beside_copper.yaml"), *argv)
+    assert code == 2 and needle in err and "Traceback" not in err
+
+
+SCENARIO = """name: cli-test
+sample:
+  volume: 50 mL
+analyte:
+  metals: {Ca: 1 mmol/L}
+interferents:
+  Mg: 0.5 mmol/L
+titrant:
+  concentration: 0.01 M
+search:
+  pH: [9.0, 13.0]
+"""
+
+
+@pytest.mark.parametrize("change,needle,line", [
+    (("Ca: 1 mmol/L", "Zz: 1 mmol/L"), "unknown metal 'Zz'", 5),
+    (("Mg: 0.5 mmol/L", "Mg: 0.5 blorp/L"), "unknown unit", 7),
+    (("Mg: 0.5 mmol/L", "Mg: -0.5 mmol/L"), "cannot be negative", 7),
+    (("pH: [9.0, 13.0]", "pH: [13.0, 9.0]"), "low < high", 11),
+    (("  volume: 50 mL", "  volume: 50 mL\n  colour: red"), "unknown key 'colour'", 4),
+    (("interferents:", "interferents: [\n"), "malformed YAML", None),
+])
+@pytest.mark.parametrize("command", ["check", "simulate", "run"])
+def test_scenario_errors_through_every_command(capsys, tmp_path, change, needle, line, command):
+    p = tmp_path / "bad.yaml"
+    p.write_text(SCENARIO.replace(*change))
+    extra = {"check": [], "simulate": ["--pH", "10", "--titrant", "EDTA", "--indicator", "EBT"], "run": ["--out", str(tmp_path)]}
+    code, _, err = run(capsys, command, str(p), *extra[command])
+    assert code == 2, err
+    assert needle in err and str(p) in err and "Traceback" not in err
+    if line is not None:
+        assert re.search(rf"{re.escape(str(p))}:{line}:\d+", err), err
+
+
+def test_check_ok(capsys, scenarios_dir):
+    code, out, _ = run(capsys, "check", *map(str, sorted(scenarios_dir.glob("*.yaml"))))
+    assert code == 0 and out.count(": ok") >= 6
+
+
+def test_run_writes_report_and_json(capsys, tmp_path):
+    code, out, err = run(capsys, "run", "--out", str(tmp_path), "--seed", "3")
+    assert code == 0, err
+    assert "searching" in err  # progress on stderr
+    html, js = tmp_path / "well-water-hardness.html", tmp_path / "well-water-hardness.json"
+    assert html.exists() and js.exists()
+    assert str(html) in out
+    doc = json.loads(js.read_text())
+    for key in ("scenario", "analyte", "seed", "evaluations", "recommended", "alternatives", "conditional_constants"):
+        assert key in doc
+    rec = doc["recommended"]
+    for key in ("pH", "buffer", "titrant", "titrant_conc_M", "masking", "indicator", "mode", "predicted_error_percent",
+                "selectivity_margin_log", "endpoint_sharpness_mL", "hazard", "precipitates", "robust_pH", "warnings"):
+        assert key in rec
+    assert doc["seed"] == 3 and rec["mode"] in ("direct", "back")
+    assert not list(tmp_path.glob(".*.tmp"))  # atomic writes leave no temporary file
+
+
+class _Links(HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.links = []
+
+    def handle_starttag(self, tag, attrs):
+        if tag == "a":
+            self.links += [v for k, v in attrs if k == "href"]
+
+
+def test_batch_over_all_examples(capsys, tmp_path, scenarios_dir):
+    """Every example scenario completes; every link in index.html resolves; summary.csv has a row each."""
+    code, out, err = run(capsys, "batch", str(scenarios_dir), "--out", str(tmp_path), "--jobs", "2")
+    assert code == 0, out + err
+    index = (tmp_path / "index.html").read_text()
+    parser = _Links()
+    parser.feed(index)
+    assert len(parser.links) >= 12
+    for href in parser.links:
+        assert (tmp_path / href).exists(), href
+    rows = (tmp_path / "summary.csv").read_text().strip().splitlines()
+    assert len(rows) == 1 + len(list(scenarios_dir.glob("*.yaml")))
+
+
+def test_batch_keeps_going_after_a_failure(capsys, tmp_path, scenarios_dir):
+    bad = tmp_path / "in" / "broken.yaml"
+    bad.parent.mkdir()
+    bad.write_text("name: [unclosed\n")
+    good = tmp_path / "in" / "bismuth.yaml"
+    good.write_text((scenarios_dir / "bismuth_beside_lead.yaml").read_text())
+    code, out, _ = run(capsys, "batch", str(tmp_path / "in"), "--out", str(tmp_path / "out"), "--jobs", "1")
+    assert code == 1
+    assert "FAILED broken" in out and "ok" in out
+    assert "broken.yaml" in (tmp_path / "out" / "index.html").read_text()
+
+
+def test_batch_bad_paths(capsys, tmp_path):
+    code, _, err = run(capsys, "batch", str(tmp_path / "nope"))
+    assert code == 2 and "no such file" in err
+
+
+def test_python_dash_m(tmp_path):
+    import subprocess
+    import sys
+    r = subprocess.run([sys.executable, "-m", "optimiser", "conditional", "Mg", "--pH", "10", "--json"], capture_output=True,
+                       text=True, cwd=tmp_path)
+    assert r.returncode == 0 and json.loads(r.stdout)["metal"] == "Mg"

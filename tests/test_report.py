@@ -1,0 +1,120 @@
+"""The HTML report: structure, numbers equal to the result, escaping, self-containment, and a real browser."""
+import json
+import re
+
+import pytest
+
+from optimiser import report
+from optimiser.report import FIGURES, SECTIONS, fmt, signed
+from optimiser.results import dumps, to_json
+from optimiser.scenario import parse
+from optimiser.search import run_search
+
+HOSTILE = """
+name: "<script>alert(1)</script>"
+description: "Calcium <b>bold</b> & <img src=x onerror=alert(2)>"
+sample: {volume: 50 mL, matrix: "<iframe src=javascript:alert(3)>"}
+analyte: {metals: {Ca: 1.0 mmol/L}}
+interferents: {Mg: 0.8 mmol/L}
+titrant: {concentration: 0.01 M}
+search:
+  pH: [9.0, 13.0]
+  titrants: [EDTA, EGTA]
+  buffers: [ammonia, NaOH]
+  indicators: [EBT, calcon_carboxylic, murexide]
+  max_masking_agents: 1
+  masking: [TEA]
+"""
+
+
+@pytest.fixture(scope="module")
+def result():
+    return run_search(parse(HOSTILE, "hostile.yaml"), seed=2, pop_size=20, n_gen=8)
+
+
+@pytest.fixture(scope="module")
+def written(result, tmp_path_factory):
+    out = tmp_path_factory.mktemp("report")
+    html_path, json_path = report.write(result, out, dumps(to_json(result)))
+    return html_path, json_path
+
+
+def test_every_section_and_figure_is_present(written):
+    html = written[0].read_text()
+    for s in SECTIONS:
+        assert f'<section id="{s}">' in html, s
+    for f in FIGURES:
+        assert re.search(rf'<figure id="{f}">\s*<svg', html), f
+    assert html.count("<svg") == len(FIGURES)
+
+
+def test_summary_numbers_equal_the_result(written, result):
+    html = written[0].read_text()
+    t = result.recommended_titration
+    assert f'<b id="endpoint-mL">{fmt(t.endpoint_mL, 4)} mL</b>' in html
+    assert f'<b id="error-percent">{signed(t.error_percent, 3)} %</b>' in html
+    doc = json.loads(written[1].read_text())
+    assert doc["recommended"]["pH"] == pytest.approx(result.recommended.candidate.pH, abs=1e-3)
+    assert doc["recommended"]["predicted_error_percent"] == pytest.approx(t.error_percent, abs=1e-4)
+    assert f"pH {fmt(result.recommended.candidate.pH, 2)}" in html
+
+
+def test_scenario_text_is_escaped(written):
+    html = written[0].read_text()
+    assert "<script>" not in html and "<img src=x" not in html and "<iframe" not in html
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in html
+    assert "&lt;b&gt;bold&lt;/b&gt;" in html
+
+
+def test_report_is_self_contained(written):
+    html = written[0].read_text()
+    assert not re.search(r'(src|href)="(https?:)?//', html)
+    assert "@import" not in html and "url(http" not in html and "<link" not in html
+    assert "@media print" in html and "@page" in html
+
+
+def test_every_constant_is_listed_with_its_source(written, result):
+    html = written[0].read_text()
+    n_rows = html.split('<table class="constants">')[1].split("</table>")[0].count("<tr>") - 1
+    assert n_rows == len({k.species for k in result.recommended_titration.constants_used})
+    assert "NIST" in html and "(from memory)" in html
+
+
+def test_safety_cautions_for_cyanide():
+    sc = parse("""
+name: cyanide-case
+sample: {volume: 25 mL}
+analyte: {metals: {Ca: 1 mmol/L}}
+interferents: {Zn: 0.5 mmol/L}
+titrant: {concentration: 0.01 M}
+search:
+  pH: [9.5, 10.5]
+  titrants: [EDTA]
+  buffers: [ammonia]
+  indicators: [EBT]
+  masking: [cyanide]
+  modes: [direct]
+""", "cn.yaml")
+    r = run_search(sc, seed=1, pop_size=16, n_gen=6, with_robustness=False)
+    assert any(a == "cyanide" for a, _ in r.recommended.candidate.masking)
+    html = report.render(r)
+    safety = html.split('<section id="safety">')[1].split("</section>")[0]
+    assert "never add acid" in safety.lower() and "safety data sheet" in safety and "safety officer" in safety
+    assert "fume hood" in safety
+
+
+@pytest.mark.browser
+def test_report_renders_in_headless_chromium(written, tmp_path):
+    """Open the report from a file URL in Debian's chromium: no console errors, every figure has a size; screenshot."""
+    import browser
+    if browser.find_chromium() is None:
+        pytest.skip("chromium is not installed (CI installs Debian's chromium; run .ci/run)")
+    shot = tmp_path / "report.png"
+    js = "JSON.stringify([...document.querySelectorAll('figure svg')].map(s => { const r = s.getBoundingClientRect(); " \
+         "return [r.width, r.height]; }))"
+    out = browser.render(written[0].resolve().as_uri(), str(shot), js=js)
+    sizes = json.loads(out["value"])
+    assert len(sizes) == len(FIGURES)
+    assert all(w > 100 and h > 100 for w, h in sizes), sizes
+    assert out["errors"] == []
+    assert shot.stat().st_size > 10000
