@@ -268,7 +268,8 @@ def solve(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None = None
             # continuation: solve every k-th point from scratch, then start each point from its nearest solved
             # neighbour (points of a curve or population given in order are close to their neighbours)
             sub = np.arange(0, B, CONTINUATION_STRIDE)
-            xs, ss, acts, it0, _ = _solve_fixed_I(*(a[sub] if a.ndim == 2 and a.shape[0] == B else a for a in args), None,
+            nu_u, K_u, T_u, nu_s_u, Ks_u = args  # only the per-point arrays are subsampled
+            xs, ss, acts, it0, _ = _solve_fixed_I(nu_u, K_u[sub], T_u[sub], nu_s_u, Ks_u[sub], None,
                                                   solids_amt[sub], active[sub], free_pH_col=fcol, tol=tol,
                                                   labels=None if point_labels is None else [point_labels[i] for i in sub])
             # linear interpolation (in log concentration, along the batch order) between the solved points

@@ -105,3 +105,14 @@ def test_bad_totals_are_refused():
         solve(s, [0.01, 0.01], pH=10.0)
     with pytest.raises(InputError):
         solve(s, [0.01, 0.01, 0.0], pH=15.0)
+
+
+def test_batch_as_long_as_the_species_list():
+    """Regression: a batch with exactly as many points as the system has species (continuation subsampling)."""
+    s = build_system(("Ca", "Mg", "Zn"), ("EDTA", "NH3", "EBT"))
+    B = len(s.species)
+    assert B >= 32  # long enough for the continuation path
+    T = np.tile([0.001, 0.0005, 0.0002, 0.0, 0.1, 2e-5, 0.0], (B, 1))
+    T[:, 3] = np.linspace(0, 0.003, B)
+    eq = solve(s, T, pH=10.0, ionic_strength_M=0.1)
+    assert mass_balance_error(eq) <= 1.0001e-10
