@@ -139,16 +139,17 @@ def bench_search():
         t_report = time.perf_counter() - t1
     print(f"search on the demo scenario: {r.evaluations} evaluations, {t_search:.1f} s search (incl. robustness), "
           f"{t_report:.1f} s report, front {len(r.front)}")
-    for name, text in (("demo (masking limited to TEA, cyanide, fluoride)", None), ("zinc beside copper (small)", ZINC_SMALL)):
+    for name, text in (("demo space restricted to EDTA, TEA or cyanide, 3 indicators, direct", None),
+                       ("zinc beside copper (small)", ZINC_SMALL)):
         sc2 = demo() if text is None else parse(text, "zinc-small.yaml")
         if text is None:  # a grid over the full demo space has ~10^6 points; restrict masking to keep it exhaustive here
             from dataclasses import replace
-            sc2 = replace(sc2, search=replace(sc2.search, masking=("TEA", "cyanide", "fluoride"), titrants=("EDTA", "CDTA"),
+            sc2 = replace(sc2, search=replace(sc2.search, masking=("TEA", "cyanide"), titrants=("EDTA",), modes=("direct",),
                                               indicators=("EBT", "calmagite", "murexide")))
         grid = grid_candidates(sc2, pH_step=0.05, buffer_levels=3, dose_levels=5)
         g_evals, t_grid = grid_search(sc2, grid)
         # search budgets growing until 99 % of the grid's hypervolume is reached
-        for n_gen in (5, 10, 15, 25, 40):
+        for n_gen in (2, 3, 5, 10, 15, 25, 40):
             t0 = time.perf_counter()
             rr = run_search(sc2, seed=1, n_gen=n_gen, with_robustness=False)
             t_s = time.perf_counter() - t0

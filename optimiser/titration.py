@@ -557,7 +557,8 @@ def _finish(plan: _Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array |
                         f"({100 * ref:.0f} % bound): no visible colour change is predicted.")
     turned = _turned(plan, eq, ref)
     n_an = sample.n_analyte_mmol
-    pM = {m: -np.log10(np.maximum(eq.free(m), 1e-300)) for m in metals}
+    # pM of a metal not (yet) present is undefined: NaN, so that it is not plotted and is null in JSON
+    pM = {m: np.where(eq.totals[:, comps.index(m)] > 0, -np.log10(np.maximum(eq.free(m), 1e-300)), np.nan) for m in metals}
     bound_fraction = {m: eq.bound(m, method.titrant) / np.maximum(eq.totals[:, comps.index(m)], 1e-300) for m in metals}
     pM_eq = {m: float(-np.log10(max(eqp.free(m)[0], 1e-300))) for m in metals}
     pM_ep = {m: float(-np.log10(max(eqp.free(m)[1], 1e-300))) for m in metals} if V_ep is not None else {}
