@@ -399,7 +399,7 @@ def _solve_fixed_I(nu, K, T, nu_s, Ks, x0, s0, active_s, free_pH_col, tol, label
             sol = np.linalg.solve(Mx_s, (rhs * Dr)[..., None])[..., 0]
         except np.linalg.LinAlgError:
             sol = np.stack([np.linalg.lstsq(m, r, rcond=None)[0] for m, r in zip(Mx_s, rhs * Dr)])
-        dx, lam = sol[:, :n], sol[:, n:]
+        dx = sol[:, :n]  # the solid amounts come from the least-squares fit above, not from the multipliers
         dx = np.where(acb, dx, 0.0)
         # solid amounts from the mass balances (weighted least squares over the active solids): more accurate
         # than the KKT multipliers, which carry the conditioning of the scaled system

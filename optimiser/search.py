@@ -28,7 +28,7 @@ from pymoo.optimize import minimize
 from .conditional import Conditions, conditional_constant, feasibility
 from .errors import ConvergenceError, MissingConstantError
 from .reagents import HAZARD_NAMES, catalogue
-from .scenario import OBJECTIVES, Scenario
+from .scenario import Scenario
 from .titration import Method, Titration, simulate, simulate_many
 
 NONE = "none"
@@ -186,9 +186,6 @@ class Evaluator:
         self.cache: dict[tuple, Evaluation] = {}
         self.n_evaluations = 0
         self.n_simulated = 0
-
-    def objectives_of(self, e: Evaluation) -> tuple[float, ...]:
-        return e.F
 
     def evaluate(self, candidates: Sequence[Candidate]) -> list[Evaluation]:
         self.n_evaluations += len(candidates)

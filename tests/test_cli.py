@@ -2,7 +2,6 @@
 import json
 import re
 from html.parser import HTMLParser
-from pathlib import Path
 
 import pytest
 

@@ -7,7 +7,7 @@ import pytest
 
 from optimiser import data
 from optimiser.constants import H, database
-from optimiser.reagents import catalogue, molar_mass
+from optimiser.reagents import catalogue
 
 TABLES = ("protonation.csv", "complexes.csv", "hydrolysis.csv", "solids.csv", "water.csv")
 

@@ -1,4 +1,6 @@
 """The multi-objective search: determinism, agreement with an exhaustive grid, and practice it must reach."""
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -24,21 +26,7 @@ def test_same_seed_same_front(tiny):
     assert c.evaluations == a.evaluations
 
 
-ZINC_SMALL = """
-name: zinc-small
-sample: {volume: 25 mL}
-analyte: {metals: {Zn: 2 mmol/L}}
-interferents: {Cu: 1 mmol/L}
-titrant: {concentration: 0.01 M}
-search:
-  pH: [4.5, 6.5]
-  titrants: [EDTA]
-  buffers: [acetate, hexamine]
-  masking: [thiosulfate]
-  max_masking_agents: 1
-  indicators: [xylenol_orange]
-  modes: [direct]
-"""
+ZINC_SMALL = (Path(__file__).parent / "fixtures" / "zinc_small.yaml").read_text()
 
 
 @pytest.mark.parametrize("which", ["tiny", "zinc"])
@@ -81,7 +69,9 @@ def test_zinc_beside_copper(scenarios_dir):
 
 
 def test_forbidden_and_hazard_limits_are_respected(scenarios_dir):
-    sc = parse(ZINC_SMALL.replace("masking: [thiosulfate]", "masking: [thiosulfate, cyanide]\n  max_hazard: low"), "z.yaml")
+    text = ZINC_SMALL.replace("masking: [thiosulfate]", "masking: [thiosulfate, cyanide]\n  max_hazard: low")
+    assert text != ZINC_SMALL
+    sc = parse(text, "z.yaml")
     r = run_search(sc, seed=2, pop_size=20, n_gen=8, with_robustness=False)
     for a in r.front:
         if a.evaluation.feasible:

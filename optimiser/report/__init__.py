@@ -7,7 +7,6 @@ from importlib import resources
 from pathlib import Path
 
 import jinja2
-import numpy as np
 import yaml
 
 from .. import __version__
@@ -16,7 +15,7 @@ from ..constants import database
 from ..errors import MissingConstantError
 from ..reagents import HAZARD_NAMES, catalogue
 from ..results import method_summary, write_atomic
-from ..search import SearchResult, strategy_of
+from ..search import SearchResult
 from ..titration import GRADUAL_DROPS
 from . import figures
 
@@ -248,4 +247,4 @@ def write(result: SearchResult, out_dir: Path, json_text: str, base: str | None 
     return html_path, json_path
 
 
-__all__ = ["render", "write", "SECTIONS", "FIGURES", "safe_name", "fmt", "strategy_of", "np"]
+__all__ = ["render", "write", "SECTIONS", "FIGURES", "safe_name", "fmt", "signed"]
