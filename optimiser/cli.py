@@ -280,7 +280,8 @@ def _cmd_run(a) -> int:
     e = result.recommended
     print(f"{sc.name}: {result.evaluations} evaluations in {result.wall_time_s:.1f} s (seed {seed})")
     if e is None:
-        print("  no feasible method found; see the report's alternatives")
+        for note in result.notes:
+            print(f"  {note}")
     else:
         c = e.candidate
         print(f"  recommended: {c.titrant} {sc.titrant_conc_M:g} M, pH {c.pH:.2f} ({c.buffer}), {c.indicator}, "

@@ -324,6 +324,23 @@ class MethodProblem(Problem):
         out["G"] = np.array([e.G for e in evals], dtype=float)
 
 
+VIOLATION_CATEGORIES = (
+    ("exceeds the", "the titre exceeds the burette"), ("no allowed buffer", "no allowed buffer holds the pH"),
+    ("not used below pH", "a masking agent below its working pH"), ("colour change", "the indicator shows no colour change at that pH"),
+    ("hazard", "a reagent above the hazard limit"), ("no end point", "no end point (the indicator does not turn)"),
+    ("blocked", "the indicator is blocked"), ("precipitates", "the analyte precipitates"), ("too slowly", "the analyte reacts too slowly"),
+    ("ten times", "an error far beyond the target"), ("no log K", "a constant is missing"),
+    ("did not converge", "the equilibrium did not converge"))
+
+
+def violation_category(text: str) -> str:
+    """A short category of a constraint violation, for summaries."""
+    for needle, category in VIOLATION_CATEGORIES:
+        if needle in text:
+            return category
+    return text
+
+
 def strategy_of(e: Evaluation) -> str:
     c = e.candidate
     if c.mode == "back":
@@ -382,8 +399,9 @@ def robustness(scenario: Scenario, e: Evaluation, half_width: float = 1.0, step:
     """Scan pH (and each masking dose) around a method; the window where |error| stays within the target."""
     c = e.candidate
     target = scenario.targets.max_error_percent
+    lo, hi = catalogue().buffer(c.buffer).pH_range  # beyond its working range the buffer does not hold the pH
     grid = np.round(np.arange(c.pH - half_width, c.pH + half_width + 1e-9, step), 4)
-    grid = grid[(grid >= 0) & (grid <= 14)]
+    grid = grid[(grid >= max(0.0, lo)) & (grid <= min(14.0, hi))]
     grid = np.union1d(grid, [c.pH])
     methods = [replace(c.method(scenario), pH=float(p)) for p in grid]
     errs = _errors(scenario, methods)
@@ -492,7 +510,14 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 40, n_gen: int
         if with_robustness:
             pH_w, doses, scan_pH, scan_dose = robustness(scenario, chosen)
     else:
-        notes.append("No feasible method was found in the search space: see the alternatives and their violations.")
+        counts: dict[str, int] = {}
+        simulated = [e for e in all_evals if e.titration is not None] or all_evals  # past the quick checks first
+        for e in simulated:
+            for key in dict.fromkeys(violation_category(v) for v in e.violations):
+                counts[key] = counts.get(key, 0) + 1
+        top = sorted(counts.items(), key=lambda kv: -kv[1])[:4]
+        notes.append("No feasible method was found in the search space. Most common reasons among the "
+                     f"{len(simulated)} candidates simulated: " + "; ".join(f"{k} ({n})" for k, n in top) + ".")
     alts = tuple(Alternative(e, strategy_of(e)) for e in front)
     curves = conditional_curves(scenario, chosen.candidate if chosen else None, np.round(np.arange(1.0, 13.51, 0.25), 2))
     return SearchResult(scenario=scenario, seed=seed, evaluations=evaluator.n_evaluations,

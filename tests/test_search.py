@@ -82,3 +82,16 @@ def test_result_is_plain_data(tiny):
     r = run_search(tiny, seed=1, pop_size=20, n_gen=5)
     assert r.evaluations == 100 and r.front and np.isfinite(r.wall_time_s)
     assert r.rule.startswith("among feasible Pareto members")
+
+
+def test_no_feasible_method_says_why():
+    """A 0.5 M sample cannot be titrated with 0.01 M titrant in a 25 mL burette: the note names the burette."""
+    sc = parse("""
+name: too-concentrated
+sample: {volume: 50 mL}
+analyte: {metals: {Ca: 0.5 mol/L}}
+titrant: {concentration: 0.01 M, burette: 25 mL}
+""", "x.yaml")
+    r = run_search(sc, seed=1, pop_size=20, n_gen=5)
+    assert r.recommended is None
+    assert "burette" in r.notes[0]

@@ -48,7 +48,8 @@ def _edges(result: SearchResult) -> list[str]:
         grid = result.robustness_pH_scan[0]
         ends = [name for name, v, g in (("low", result.robust_pH[0], grid[0]), ("high", result.robust_pH[1], grid[-1])) if abs(v - g) < 1e-9]
         if ends:
-            out.append(f"the pH window reaches the scanned range at its {' and '.join(ends)} end (at least this wide)")
+            out.append(f"the pH window reaches the end of the scan (one pH unit, within the buffer's working range) at its "
+                       f"{' and '.join(ends)} side")
     for a, (lo, hi) in result.robust_dose.items():
         dose = result.robustness_dose_scan[a][0]
         ends = [name for name, v, g in (("low", lo, dose[0]), ("high", hi, dose[-1])) if abs(v / g - 1) < 1e-9]
