@@ -223,9 +223,6 @@ class Database:
         """The database id of a metal from any of its spellings ("Fe3+", "Fe(III)", "cu")."""
         return _resolve(name, self.metals, "metal")
 
-    def ligands_of(self, metal: str) -> list[str]:
-        return sorted({lig for (m, lig) in self.complexes if m == metal})
-
     def constants_for(self, name: str) -> list[FormationConstant]:
         """Every constant that involves a metal or ligand (for ``optimiser constants NAME``)."""
         out: list[FormationConstant] = []
