@@ -242,7 +242,8 @@ def _cmd_simulate(a) -> int:
         print("  end point: none (the indicator does not turn)")
     else:
         print(f"  end point:   {t.endpoint_mL:.3f} mL, colour {t.colour_change[0]} -> {t.colour_change[1]}")
-        print(f"  error:       {t.error_percent:+.3f} %")
+        print(f"  error:       {t.error_percent:+.3f} %"
+              + (f"  (of which {t.indicator_blank_percent:+.3f} % is analyte held by the indicator)" if t.indicator_blank_percent else ""))
         print(f"  sharpness:   {fmt(t.sharpness_mL)} mL ({fmt(t.sharpness_drops)} drops of 0.05 mL)"
               + ("  too gradual" if t.too_gradual else ""))
     if t.cotitrated:

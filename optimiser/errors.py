@@ -49,6 +49,10 @@ class DataError(OptimiserError):
     """The constants database itself is inconsistent (a bug in a data file, not in the user's input)."""
 
 
+class InapplicableMethodError(InputError):
+    """A method that cannot determine the analyte at all (for example, its masking agent masks the analyte itself)."""
+
+
 class MissingConstantError(OptimiserError):
     """A constant needed for a calculation is not in the database (never silently taken as zero)."""
 

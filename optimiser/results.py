@@ -139,7 +139,7 @@ def method_summary(result: SearchResult, e: Evaluation, t: Titration) -> dict[st
         "robust_pH": list(result.robust_pH) if result.robust_pH else None,
         "robust_dose": {k: list(v) for k, v in result.robust_dose.items()}, "formula": formula, "procedure": procedure,
         "warnings": list(t.warnings), "assumptions": list(t.assumptions), "pH_drift": t.pH_drift,
-        "cotitrated": t.cotitrated, "strategy": strategy_of(e),
+        "cotitrated": t.cotitrated, "strategy": strategy_of(e), "indicator_blank_percent": t.indicator_blank_percent,
     }
 
 
@@ -171,6 +171,7 @@ def to_json(result: SearchResult) -> dict[str, Any]:
         rec["equivalence_mL"] = _r(t.equivalence_mL)
         rec["colour_change"] = list(t.colour_change)
         rec["cotitrated"] = {k: _r(v, 6) for k, v in t.cotitrated.items()}
+        rec["indicator_blank_percent"] = _r(t.indicator_blank_percent)
     alts = []
     for a in result.front:
         if result.recommended is not None and a.evaluation.candidate == result.recommended.candidate:
@@ -194,7 +195,8 @@ def titration_json(t: Titration, every: int = 1) -> dict[str, Any]:
     return {
         "equivalence": {"volume_mL": _r(t.equivalence_mL), "pM": {m: _r(v) for m, v in t.pM_eq.items()}},
         "endpoint": {"volume_mL": _r(t.endpoint_mL), "pM": {m: _r(v) for m, v in t.pM_ep.items()}},
-        "error_percent": _r(t.error_percent), "sharpness_mL": _r(t.sharpness_mL),
+        "error_percent": _r(t.error_percent), "indicator_blank_percent": _r(t.indicator_blank_percent),
+        "sharpness_mL": _r(t.sharpness_mL),
         "sharpness_drops": _r(t.sharpness_drops, 1), "too_gradual": t.too_gradual,
         "cotitrated": {m: _r(v, 6) for m, v in t.cotitrated.items()},
         "precipitates": sorted(set(t.precipitates_start) | set(t.precipitates_end)),

@@ -275,7 +275,7 @@ class Evaluator:
             full["selectivity"] = 0.0
         F = tuple(full[k] for k in sc.objectives)
         readable = 1.0 if any(x.startswith(("no end point", "indicator", "not simulated", "no log K", "no allowed", "hazard",
-                                            "equilibrium did not converge"))
+                                            "equilibrium did not converge", "the method leaves no"))
                               or "colour" in x or "not used below" in x for x in v) else -1.0
         chem = 1.0 if any("precipitates" in x or "too slowly" in x or "ten times" in x for x in v) else -1.0
         vol = 1.0 if any("burette" in x for x in v) else -1.0
@@ -330,7 +330,7 @@ VIOLATION_CATEGORIES = (
     ("hazard", "a reagent above the hazard limit"), ("no end point", "no end point (the indicator does not turn)"),
     ("blocked", "the indicator is blocked"), ("precipitates", "the analyte precipitates"), ("too slowly", "the analyte reacts too slowly"),
     ("ten times", "an error far beyond the target"), ("no log K", "a constant is missing"),
-    ("did not converge", "the equilibrium did not converge"))
+    ("did not converge", "the equilibrium did not converge"), ("leaves no", "the method masks the analyte itself"))
 
 
 def violation_category(text: str) -> str:
@@ -372,6 +372,49 @@ def _pareto(evals: Sequence[Evaluation]) -> list[Evaluation]:
             seen.add(k)
             out.append(e)
     return out
+
+
+def _no_worse(simpler: Evaluation, e: Evaluation) -> bool:
+    """True when a method without some masking agent does the job as well (small tolerances, our own)."""
+    if not simpler.feasible and e.feasible:
+        return False
+    if simpler.error_percent is None or e.error_percent is None:
+        return simpler.error_percent is None and e.error_percent is None
+    if abs(simpler.error_percent) > abs(e.error_percent) + 0.05:
+        return False
+    if simpler.sharpness_mL is not None and e.sharpness_mL is not None and simpler.sharpness_mL > 1.05 * e.sharpness_mL + 0.005:
+        return False
+    if simpler.margin is not None:
+        if e.margin is None and simpler.margin < 6.0:  # 6: about 0.1 % (Ringbom; textbook threshold)
+            return False
+        if e.margin is not None and simpler.margin < e.margin - 0.1:
+            return False
+    return True
+
+
+def prune_masking(evaluator: Evaluator, front: Sequence[Evaluation]) -> list[Evaluation]:
+    """Drop every masking agent that does nothing (a practitioner adds no reagent without a reason).
+
+    Each member loses, one at a time, any agent whose removal leaves the error, sharpness, margin and feasibility no
+    worse; the simpler variants are evaluated (in batch) like any other candidate.
+    """
+    current = list(front)
+    for _ in range(3):  # at most two agents per method
+        variants, owners = [], []
+        for k, e in enumerate(current):
+            for a, _ in e.candidate.masking:
+                variants.append(replace(e.candidate, masking=tuple(m for m in e.candidate.masking if m[0] != a)))
+                owners.append(k)
+        if not variants:
+            break
+        changed = False
+        for k, v in zip(owners, evaluator.evaluate(variants)):
+            if len(v.candidate.masking) < len(current[k].candidate.masking) and _no_worse(v, current[k]):
+                current[k] = v
+                changed = True
+        if not changed:
+            break
+    return list({e.candidate.key(): e for e in current}.values())
 
 
 def recommend(front: Sequence[Evaluation], scenario: Scenario) -> tuple[Evaluation | None, str]:
@@ -499,7 +542,7 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 40, n_gen: int
     algo = MixedVariableGA(pop_size=pop_size, survival=RankAndCrowding(crowding_func="cd"))
     res = minimize(problem, algo, ("n_gen", n_gen), seed=seed, callback=callback, verbose=False)
     all_evals = list(evaluator.cache.values())
-    front = _pareto(all_evals)
+    front = _pareto(prune_masking(evaluator, _pareto(all_evals)))
     chosen, rule = recommend(front, scenario)
     rec_t = None
     notes = []

@@ -21,7 +21,7 @@ from numpy.typing import NDArray
 from .conditional import check_concentration, check_pH
 from .constants import H, database
 from .equilibrium import Equilibrium, build_system, solve
-from .errors import InputError, MissingConstantError
+from .errors import InapplicableMethodError, InputError, MissingConstantError
 from .reagents import catalogue
 
 Array = NDArray[np.float64]
@@ -258,6 +258,7 @@ class Titration:
     constants_used: tuple = field(default=(), repr=False)
     pH_drift: float | None = None
     masked_by_assumption: tuple[str, ...] = ()
+    indicator_blank_percent: float | None = None
 
     @property
     def sharpness_drops(self) -> float | None:
@@ -357,6 +358,9 @@ def _plan(sample: Sample, method: Method, n_points: int) -> _Plan:
     if back and method.back_metal not in metals:
         metals.append(method.back_metal)
     _check_constants([m for m in metals if prep.metals.get(m, 0.0) > 0 or m == method.back_metal], method.titrant)
+    if not any(prep.metals.get(a, 0.0) > 0 for a in sample.analyte):
+        raise InapplicableMethodError(f"the method leaves no {', '.join(sample.analyte)} to titrate: "
+                                      f"{', '.join(a for a, _ in method.masking) or 'its reagents'} mask or reduce the analyte itself")
     system = build_system(tuple(metals), method.ligands)
     comps = system.components
     V0, cT = sample.volume_mL, method.titrant_conc_M
@@ -382,7 +386,7 @@ def _plan(sample: Sample, method: Method, n_points: int) -> _Plan:
     slow = [m for m in sample.analyte if db.metals[m].get("slow_with_titrant")]
     plan = _Plan(sample, method, prep, system, metals, totals_direct, V_eq, V_eq, None, 0.0, n_points, slow, warnings, assumptions)
     if back:
-        V_x = method.excess_ratio * V_all
+        V_x = method.excess_ratio * max(V_all, V_eq)  # an excess over the analyte even where part of it cannot bind
         cB = method.back_concentration
         VB_eq = (cT * V_x - n_an) / cB
         iB = comps.index(method.back_metal)
@@ -496,7 +500,7 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
     for k, m in enumerate(methods):
         try:
             plans.append(_plan(sample, m, n_points))
-        except MissingConstantError as exc:
+        except (MissingConstantError, InapplicableMethodError) as exc:
             if errors is None:
                 raise
             errors.append((k, exc))
@@ -567,6 +571,13 @@ def _finish(plan: _Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array |
     else:
         error = None if V_ep is None else (V_ep - plan.V_eq) / plan.V_eq * 100.0
     sharp = None if (V10 is None or V90 is None) else abs(V90 - V10)
+    # analyte still held by the indicator at the end point, as a share of the analyte: an indicator blank that cancels
+    # when the titrant is standardised against the same metal with the same indicator dose
+    blank = None
+    if V_ep is not None and not back:
+        held = sum(float(eqp.bound(method.indicator, a)[1]) for a in sample.analyte if a in comps)
+        total = sum(float(eqp.totals[1, comps.index(a)]) for a in sample.analyte if a in comps)
+        blank = -100.0 * held / total if total > 0 else None
     cotitrated = {}
     if V_ep is not None:
         for m in sample.interferents:
@@ -625,6 +636,10 @@ def _finish(plan: _Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array |
     if indicator.needs_Mg_for_Ca and "Ca" in sample.analyte and sample.metals.get("Mg", 0.0) <= 0 and not back:
         warnings.append(f"{indicator.name} gives a sharp calcium end point only with magnesium present: add a little Mg-EDTA "
                         f"to the buffer (it does not change the result).")
+    if blank is not None and abs(blank) >= 0.2:
+        warnings.append(f"{-blank:.2g} % of the analyte is still held by the indicator at the end point (an indicator blank, "
+                        f"included in the predicted error): standardise the titrant against the same metal with the same "
+                        f"indicator dose, or use less indicator.")
     if V_ep is not None and sharp is not None and sharp > GRADUAL_DROPS * DROP_mL:
         warnings.append(f"The colour change takes {sharp:.2f} mL ({sharp / DROP_mL:.0f} drops): too gradual to see sharply.")
     h_free = _dominant_free_form(fr, 0 if back else -1)
@@ -640,7 +655,7 @@ def _finish(plan: _Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array |
         blocked_by=tuple(blocked), indicator_usable=usable, colour_change=change, excess_mL=plan.V_x,
         warnings=tuple(dict.fromkeys(warnings)), assumptions=tuple(dict.fromkeys(assumptions)),
         speciation_start=spec_start, speciation_end=spec_end, constants_used=tuple(system.uses()), pH_drift=drift,
-        masked_by_assumption=tuple(m for m, c in prep.masked_by_assumption.items() if c > 0))
+        masked_by_assumption=tuple(m for m, c in prep.masked_by_assumption.items() if c > 0), indicator_blank_percent=blank)
 
 
 def _dominant_free_form(fractions: Mapping[str, Array], point: int) -> int:

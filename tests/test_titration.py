@@ -111,3 +111,11 @@ def test_error_changes_continuously_with_pH():
 def test_pH_drift_is_reported():
     t = simulate(Sample(50, {"Ca": 0.002}, ("Ca",)), Method(10.0, "ammonia", "EDTA", 0.01, "EBT", buffer_total_M=0.1), pH_drift=True)
     assert t.pH_drift is not None and -0.5 < t.pH_drift < 0
+
+
+def test_a_method_that_masks_the_analyte_itself_is_refused():
+    """Thiosulfate reduces all copper to Cu(I), which does not bind EDTA: nothing is left to titrate."""
+    from optimiser.errors import InapplicableMethodError
+    with pytest.raises(InapplicableMethodError, match="leaves no Cu"):
+        simulate(Sample(25, {"Cu": 0.002}, ("Cu",)),
+                 Method(10.0, "ammonia", "EDTA", 0.01, "EBT", masking=(("thiosulfate", 0.05),), mode="back", back_metal="Mg"))
