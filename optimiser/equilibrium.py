@@ -277,8 +277,8 @@ def solve(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None = None
             lo = np.minimum(np.floor(pos).astype(int), len(sub) - 1)
             hi = np.minimum(lo + 1, len(sub) - 1)
             w = np.clip(pos - lo, 0.0, 1.0)[:, None]
-            both = (xs[lo] > LOG_MIN + 1) & (xs[hi] > LOG_MIN + 1)
-            x = np.where(both, (1 - w) * xs[lo] + w * xs[hi], np.where(w < 0.5, xs[lo], xs[hi]))
+            ok_lo, ok_hi = xs[lo] > LOG_MIN + 1, xs[hi] > LOG_MIN + 1
+            x = np.where(ok_lo & ok_hi, (1 - w) * xs[lo] + w * xs[hi], np.where(ok_lo, xs[lo], xs[hi]))
             solids_amt, active = ss[lo], acts[lo]
             iterations += it0
         x, solids_amt, active, it, resid = _solve_fixed_I(*args, x, solids_amt, active, free_pH_col=fcol, tol=tol,
