@@ -365,6 +365,7 @@ def _solve_fixed_I(nu, K, T, nu_s, Ks, x0, s0, active_s, free_pH_col, tol, label
     if P:
         x = _feasible(x, nu_s, Ks, active_c)
     abs_nu, abs_nu_s = np.abs(nu), np.abs(nu_s)
+    nu_pairs = LN10 * (nu[:, :, None] * nu[:, None, :]).reshape(nu.shape[0], n * n)
     done = np.zeros(B, dtype=bool)
     it = 0
     Rs = np.zeros((B, n))
@@ -375,7 +376,7 @@ def _solve_fixed_I(nu, K, T, nu_s, Ks, x0, s0, active_s, free_pH_col, tol, label
         xb, Kb, Tb, acb = x[idx], K[idx], T[idx], active_c[idx]
         c = np.exp(LN10 * np.minimum(Kb + xb @ nu.T, 300.0))
         R = np.where(acb, c @ nu - Tb, 0.0)
-        J = LN10 * ((nu.T[None, :, :] * c[:, None, :]) @ nu)
+        J = (c @ nu_pairs).reshape(len(idx), n, n)  # ln10 sum_s nu_sj nu_sk c_s, one matrix product
         inactive = ~acb
         if P:
             Wb = W[idx]
