@@ -26,7 +26,7 @@ from pymoo.indicators.hv import HV
 from pymoo.optimize import minimize
 
 from .conditional import Conditions, conditional_constant, feasibility
-from .errors import ConvergenceError, MissingConstantError
+from .errors import ConvergenceError, InapplicableMethodError, MissingConstantError
 from .reagents import HAZARD_NAMES, catalogue
 from .scenario import Scenario
 from .titration import Method, Titration, simulate, simulate_many
@@ -59,6 +59,18 @@ class Candidate:
                       titrant=self.titrant, titrant_conc_M=scenario.titrant_conc_M, masking=self.masking,
                       indicator=self.indicator, mode=self.mode, back_metal=self.back_metal)
 
+    def ligand_totals(self) -> dict[str, float]:
+        """Total concentration of each ligand the method adds (buffer ligand and masking agents) [mol/L]."""
+        cat = catalogue()
+        out: dict[str, float] = {}
+        buf = cat.buffer(self.buffer)
+        if buf.ligand:
+            out[buf.ligand] = 10 ** self.log_buffer
+        for a, dose in self.masking:
+            lig = cat.masking_agent(a).ligand
+            out[lig] = out.get(lig, 0.0) + dose
+        return out
+
     def key(self) -> tuple:
         return (round(self.pH, 3), self.buffer, round(self.log_buffer, 2), self.titrant,
                 tuple((a, round(math.log10(c), 2)) for a, c in self.masking), self.indicator, self.mode,
@@ -76,6 +88,7 @@ class Evaluation:
     hazard: int
     violations: tuple[str, ...]
     titration: Titration | None
+    kinds: tuple[str, ...]
     F: tuple[float, ...]
     G: tuple[float, ...]
 
@@ -143,16 +156,9 @@ def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) ->
     reduced and assumption-masked parts removed); the conditional constants include the buffer's and masking
     agents' ligands. None when no interferent is left.
     """
-    cat = catalogue()
     s = scenario.sample
     cond = Conditions(s.ionic_strength_M, s.temperature_C)
-    ligands = {}
-    buf = cat.buffer(c.buffer)
-    if buf.ligand:
-        ligands[buf.ligand] = 10 ** c.log_buffer
-    for a, dose in c.masking:
-        lig = cat.masking_agent(a).ligand
-        ligands[lig] = ligands.get(lig, 0.0) + dose
+    ligands = c.ligand_totals()
 
     def log_cK(metal: str, conc: float) -> float:
         if conc <= 0:
@@ -213,76 +219,72 @@ class Evaluator:
                     local = [(0, exc)]
                 errors += [(k, e) for _, e in local]
         self.n_simulated += len(to_sim)
-        missing = {k: str(e) for k, e in errors}
+        failed = {k: (_error_kind(e), str(e)) for k, e in errors}
         for k, (c, t) in enumerate(zip(to_sim, sims)):
-            self.cache[c.key()] = self._score(c, t, [missing[k]] if k in missing else [])
+            self.cache[c.key()] = self._score(c, t, [failed[k]] if k in failed else [])
         for c, v in screened.items():
             self.cache[c.key()] = self._score(c, None, v)
         return [self.cache[c.key()] for c in candidates]
 
-    def _prescreen(self, c: Candidate) -> list[str]:
-        """Violations that need no equilibrium (skip the simulation)."""
+    def _prescreen(self, c: Candidate) -> list[tuple[str, str]]:
+        """Violations (kind, text) that need no equilibrium (skip the simulation)."""
         cat = catalogue()
         sc = self.scenario
         out = []
         ind = cat.indicator(c.indicator)
         if not (ind.usable_pH[0] <= c.pH <= ind.usable_pH[1]):
-            out.append(f"{ind.name} shows no colour change at pH {c.pH:.2f}")
-        if not buffers_for(c.pH, sc.search.buffers) or c.buffer not in buffers_for(c.pH, sc.search.buffers):
-            out.append(f"no allowed buffer holds pH {c.pH:.2f}")
+            out.append(("indicator_pH", f"{ind.name} shows no colour change at pH {c.pH:.2f}"))
+        if c.buffer not in buffers_for(c.pH, sc.search.buffers):
+            out.append(("buffer", f"no allowed buffer holds pH {c.pH:.2f}"))
         for a, _ in c.masking:
             agent = cat.masking_agent(a)
             if c.pH < agent.min_pH:
-                out.append(f"{agent.name} is not used below pH {agent.min_pH:g}")
+                out.append(("masking_pH", f"{agent.name} is not used below pH {agent.min_pH:g}"))
         if hazard_of(c) > sc.search.max_hazard:
-            out.append(f"hazard {HAZARD_NAMES[hazard_of(c)]} is above the scenario's limit")
+            out.append(("hazard", f"hazard {HAZARD_NAMES[hazard_of(c)]} is above the scenario's limit"))
         return out
 
-    def _score(self, c: Candidate, t: Titration | None, violations: list[str]) -> Evaluation:
+    def _score(self, c: Candidate, t: Titration | None, violations: list[tuple[str, str]]) -> Evaluation:
         sc = self.scenario
         v = list(violations)
         err = sharp = None
         if t is not None:
             err, sharp = t.error_percent, t.sharpness_mL
             if t.endpoint_mL is None:
-                v.append("no end point: the indicator does not turn")
+                v.append(("no_end_point", "no end point: the indicator does not turn"))
             if t.blocked_by:
-                v.append(f"indicator blocked by {', '.join(t.blocked_by)}")
+                v.append(("blocked", f"indicator blocked by {', '.join(t.blocked_by)}"))
             if not t.indicator_usable:
-                v.append("indicator shows no colour change at this pH")
-            solids_an = [s for s in set(t.precipitates_start) | set(t.precipitates_end)
-                         if t.sample.analyte and any(s.startswith(a) for a in t.sample.analyte)]
-            if solids_an:
-                v.append(f"the analyte precipitates ({', '.join(solids_an)})")
-            if c.mode == "direct" and any("too slowly" in w for w in t.warnings):
-                v.append("the analyte reacts too slowly for a direct titration")
+                v.append(("indicator_pH", "indicator shows no colour change at this pH"))
+            if t.analyte_precipitates:
+                v.append(("analyte_solid", f"the analyte precipitates ({', '.join(t.analyte_precipitates)})"))
+            if c.mode == "direct" and t.slow_analytes:
+                v.append(("slow", "the analyte reacts too slowly for a direct titration"))
             if err is not None and abs(err) > 10 * sc.targets.max_error_percent:
-                v.append(f"error {err:+.1f} % is more than ten times the target")
-            total_mL = (t.excess_mL or 0.0) if c.mode == "back" else (t.endpoint_mL or 0.0)
-            if c.mode == "back":
-                total_mL = max(total_mL, t.endpoint_mL or 0.0)
+                v.append(("error_far", f"error {err:+.1f} % is more than ten times the target"))
+            total_mL = max(t.excess_mL or 0.0, t.endpoint_mL or 0.0) if c.mode == "back" else (t.endpoint_mL or 0.0)
             if total_mL > sc.burette_mL:
-                v.append(f"titre {total_mL:.1f} mL exceeds the {sc.burette_mL:g} mL burette")
-        elif not v:
-            v.append("not simulated")
+                v.append(("burette", f"titre {total_mL:.1f} mL exceeds the {sc.burette_mL:g} mL burette"))
         margin = selectivity_margin(sc, c, t) if t is not None else None
         hz = hazard_of(c)
         full = {"error": min(abs(err), ERROR_CAP) if err is not None else ERROR_CAP,
-                "selectivity": -min(margin, MARGIN_CAP) if margin is not None else -MARGIN_CAP,
+                "selectivity": -min(margin, MARGIN_CAP) if margin is not None else (-MARGIN_CAP if t is not None else 0.0),
                 "sharpness": min(sharp, SHARPNESS_CAP) if sharp is not None else SHARPNESS_CAP,
                 "hazard": float(hz), "complexity": complexity_of(c)}
-        if margin is None and t is None:
-            full["selectivity"] = 0.0
-        F = tuple(full[k] for k in sc.objectives)
-        readable = 1.0 if any(x.startswith(("no end point", "indicator", "not simulated", "no log K", "no allowed", "hazard",
-                                            "equilibrium did not converge", "the method leaves no"))
-                              or "colour" in x or "not used below" in x for x in v) else -1.0
-        chem = 1.0 if any("precipitates" in x or "too slowly" in x or "ten times" in x for x in v) else -1.0
-        vol = 1.0 if any("burette" in x for x in v) else -1.0
-        if any(x.startswith("no log K") for x in v):
-            readable = 1.0
+        groups = {VIOLATIONS[kind][0] for kind, _ in v}
         return Evaluation(candidate=c, error_percent=err, margin=margin, sharpness_mL=sharp, hazard=hz,
-                          violations=tuple(dict.fromkeys(v)), titration=t, F=F, G=(readable, chem, vol))
+                          violations=tuple(dict.fromkeys(text for _, text in v)), titration=t,
+                          F=tuple(full[k] for k in sc.objectives),
+                          G=tuple(1.0 if g in groups else -1.0 for g in CONSTRAINTS),
+                          kinds=tuple(dict.fromkeys(kind for kind, _ in v)))
+
+
+def _error_kind(exc: Exception) -> str:
+    if isinstance(exc, MissingConstantError):
+        return "missing_constant"
+    if isinstance(exc, InapplicableMethodError):
+        return "inapplicable"
+    return "not_converged"
 
 
 class MethodProblem(Problem):
@@ -301,7 +303,7 @@ class MethodProblem(Problem):
             v[f"mask{i}"] = Choice(options=list(self.masking_options))
             v[f"dose{i}"] = Real(bounds=(0.0, 1.0))  # position within the agent's own log dose range
         self._dose_range = {a: tuple(math.log10(x) for x in cat.masking_agent(a).dose_range_M) for a in sp.masking}
-        super().__init__(vars=v, n_obj=len(scenario.objectives), n_ieq_constr=3)
+        super().__init__(vars=v, n_obj=len(scenario.objectives), n_ieq_constr=len(CONSTRAINTS))
 
     def decode(self, x: dict) -> Candidate:
         sp = self.scenario.search
@@ -324,21 +326,23 @@ class MethodProblem(Problem):
         out["G"] = np.array([e.G for e in evals], dtype=float)
 
 
-VIOLATION_CATEGORIES = (
-    ("exceeds the", "the titre exceeds the burette"), ("no allowed buffer", "no allowed buffer holds the pH"),
-    ("not used below pH", "a masking agent below its working pH"), ("colour change", "the indicator shows no colour change at that pH"),
-    ("hazard", "a reagent above the hazard limit"), ("no end point", "no end point (the indicator does not turn)"),
-    ("blocked", "the indicator is blocked"), ("precipitates", "the analyte precipitates"), ("too slowly", "the analyte reacts too slowly"),
-    ("ten times", "an error far beyond the target"), ("no log K", "a constant is missing"),
-    ("did not converge", "the equilibrium did not converge"), ("leaves no", "the method masks the analyte itself"))
-
-
-def violation_category(text: str) -> str:
-    """A short category of a constraint violation, for summaries."""
-    for needle, category in VIOLATION_CATEGORIES:
-        if needle in text:
-            return category
-    return text
+# kind of violation -> (constraint it counts against, short text for summaries)
+VIOLATIONS = {
+    "indicator_pH": ("readable", "the indicator shows no colour change at that pH"),
+    "buffer": ("readable", "no allowed buffer holds the pH"),
+    "masking_pH": ("readable", "a masking agent below its working pH"),
+    "hazard": ("readable", "a reagent above the hazard limit"),
+    "no_end_point": ("readable", "no end point (the indicator does not turn)"),
+    "blocked": ("readable", "the indicator is blocked"),
+    "missing_constant": ("readable", "a constant is missing"),
+    "inapplicable": ("readable", "the method masks the analyte itself"),
+    "not_converged": ("readable", "the equilibrium did not converge"),
+    "analyte_solid": ("chemistry", "the analyte precipitates"),
+    "slow": ("chemistry", "the analyte reacts too slowly"),
+    "error_far": ("chemistry", "an error far beyond the target"),
+    "burette": ("volume", "the titre exceeds the burette"),
+}
+CONSTRAINTS = ("readable", "chemistry", "volume")
 
 
 def strategy_of(e: Evaluation) -> str:
@@ -494,17 +498,10 @@ def _window(x: np.ndarray, err: np.ndarray, x0: float, target: float) -> tuple[f
 
 def conditional_curves(scenario: Scenario, c: Candidate | None, pH: np.ndarray) -> dict[str, np.ndarray]:
     """log K' of every metal with the recommended titrant across pH (with the method's buffer and masking ligands)."""
-    cat = catalogue()
     s = scenario.sample
     cond = Conditions(s.ionic_strength_M, s.temperature_C)
     titrant = c.titrant if c else "EDTA"
-    ligands = {}
-    if c is not None:
-        buf = cat.buffer(c.buffer)
-        if buf.ligand:
-            ligands[buf.ligand] = 10 ** c.log_buffer
-        for a, d in c.masking:
-            ligands[cat.masking_agent(a).ligand] = ligands.get(cat.masking_agent(a).ligand, 0.0) + d
+    ligands = c.ligand_totals() if c is not None else {}
     out = {"pH": pH}
     for m in s.metals:
         for lig_set, suffix in ((ligands, ""), ({}, " (no ligands)")):
@@ -556,8 +553,8 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 40, n_gen: int
         counts: dict[str, int] = {}
         simulated = [e for e in all_evals if e.titration is not None] or all_evals  # past the quick checks first
         for e in simulated:
-            for key in dict.fromkeys(violation_category(v) for v in e.violations):
-                counts[key] = counts.get(key, 0) + 1
+            for kind in dict.fromkeys(e.kinds):
+                counts[VIOLATIONS[kind][1]] = counts.get(VIOLATIONS[kind][1], 0) + 1
         top = sorted(counts.items(), key=lambda kv: -kv[1])[:4]
         notes.append("No feasible method was found in the search space. Most common reasons among the "
                      f"{len(simulated)} candidates simulated: " + "; ".join(f"{k} ({n})" for k, n in top) + ".")

@@ -159,7 +159,6 @@ class Prepared:
 
     metals: dict[str, float]
     masked_by_assumption: dict[str, float]
-    reduced: dict[str, float]
     ligand_totals: dict[str, float]
     assumptions: tuple[str, ...]
     warnings: tuple[str, ...]
@@ -175,7 +174,6 @@ def prepare(sample: Sample, method: Method) -> Prepared:
         ligand_totals[buf.ligand] = method.buffer_total_M
     assumptions, warnings = [], []
     masked: dict[str, float] = {}
-    reduced: dict[str, float] = {}
     for agent_id, dose in method.masking:
         agent = cat.masking_agent(agent_id)
         left = dose
@@ -187,7 +185,6 @@ def prepare(sample: Sample, method: Method) -> Prepared:
             frac = min(1.0, left / need) if need > 0 else 1.0
             metals[metal] = c * (1 - frac)
             metals[rule["to"]] = metals.get(rule["to"], 0.0) + c * frac
-            reduced[metal] = reduced.get(metal, 0.0) + c * frac
             left -= need * frac
             assumptions.append(f"{agent.name}: {rule['note']}.")
             if frac < 1:
@@ -207,7 +204,7 @@ def prepare(sample: Sample, method: Method) -> Prepared:
         if method.pH < agent.min_pH:
             warnings.append(f"{agent.name} is not used below pH {agent.min_pH} (the method's pH is {method.pH:.2f}).")
     metals = {m: c for m, c in metals.items() if c > 0 or m in sample.analyte}
-    return Prepared(metals, masked, reduced, ligand_totals, tuple(dict.fromkeys(assumptions)), tuple(warnings))
+    return Prepared(metals, masked, ligand_totals, tuple(dict.fromkeys(assumptions)), tuple(warnings))
 
 
 def _check_constants(metals: Sequence[str], titrant: str) -> None:
@@ -259,6 +256,8 @@ class Titration:
     pH_drift: float | None = None
     masked_by_assumption: tuple[str, ...] = ()
     indicator_blank_percent: float | None = None
+    slow_analytes: tuple[str, ...] = ()
+    analyte_precipitates: tuple[str, ...] = ()
 
     @property
     def sharpness_drops(self) -> float | None:
@@ -345,8 +344,6 @@ class _Plan:
     assumptions: list
     frozen: dict = field(default_factory=dict)
     V: Array | None = None
-    Vf: Array | None = None
-    probe: list = field(default_factory=list)
 
 
 def _plan(sample: Sample, method: Method, n_points: int) -> _Plan:
@@ -604,9 +601,11 @@ def _finish(plan: _Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array |
     solids = {name: eq.solid_amount[:, j] for j, name in enumerate(system.solids) if np.any(eq.solid_amount[:, j] > 1e-12)}
     pre_start = tuple(eq.solids_present(0))
     pre_end = tuple(eqp.solids_present(1 if V_ep is not None else 0))
+    analyte_solids = []
     for s_name in sorted(set(pre_start) | set(pre_end)):
         m = system.solid_metals[system.solids.index(s_name)]
         if m in sample.analyte:
+            analyte_solids.append(s_name)
             warnings.append(f"The analyte {m} precipitates as {s_name}: the titration would be slow and low (add the titrant "
                             f"before the pH is raised, or change the pH).")
         else:
@@ -655,7 +654,8 @@ def _finish(plan: _Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array |
         blocked_by=tuple(blocked), indicator_usable=usable, colour_change=change, excess_mL=plan.V_x,
         warnings=tuple(dict.fromkeys(warnings)), assumptions=tuple(dict.fromkeys(assumptions)),
         speciation_start=spec_start, speciation_end=spec_end, constants_used=tuple(system.uses()), pH_drift=drift,
-        masked_by_assumption=tuple(m for m, c in prep.masked_by_assumption.items() if c > 0), indicator_blank_percent=blank)
+        masked_by_assumption=tuple(m for m, c in prep.masked_by_assumption.items() if c > 0), indicator_blank_percent=blank,
+        slow_analytes=tuple(plan.slow), analyte_precipitates=tuple(analyte_solids))
 
 
 def _dominant_free_form(fractions: Mapping[str, Array], point: int) -> int:

@@ -72,11 +72,7 @@ def _criteria(result: SearchResult, m: dict) -> list[dict]:
     c = e.candidate
     cat = catalogue()
     cond = Conditions(sc.sample.ionic_strength_M, sc.sample.temperature_C)
-    ligands = {}
-    if cat.buffer(c.buffer).ligand:
-        ligands[cat.buffer(c.buffer).ligand] = 10 ** c.log_buffer
-    for a, d in c.masking:
-        ligands[cat.masking_agent(a).ligand] = d
+    ligands = c.ligand_totals()
     V0 = sc.sample.volume_mL
     V_ep = t.endpoint_mL or t.equivalence_mL
     feas = []
@@ -149,14 +145,8 @@ def _cc_table(result: SearchResult) -> dict:
     sc = result.scenario
     c = result.recommended.candidate if result.recommended else None
     pHs = sorted({4.0, 6.0, 8.0, 10.0, 12.0} | ({round(c.pH, 2)} if c else set()))
-    cat = catalogue()
     cond = Conditions(sc.sample.ionic_strength_M, sc.sample.temperature_C)
-    ligands = {}
-    if c is not None:
-        if cat.buffer(c.buffer).ligand:
-            ligands[cat.buffer(c.buffer).ligand] = 10 ** c.log_buffer
-        for a, d in c.masking:
-            ligands[cat.masking_agent(a).ligand] = d
+    ligands = c.ligand_totals() if c is not None else {}
     rows = []
     for metal in figures.metal_order(result):
         try:
