@@ -12,6 +12,7 @@ from dataclasses import dataclass
 from multiprocessing import get_context
 from pathlib import Path
 
+from .equilibrium import warm_up
 from .errors import OptimiserError
 from .results import dumps, to_json, write_atomic
 
@@ -136,6 +137,7 @@ def run_batch(paths: list[Path], out_dir: Path, jobs: int | None = None, seed: i
             if progress:
                 _progress(len(rows), len(paths), rows[k].name)
     else:
+        warm_up()  # compile (or load) the solver's kernel once, before the workers fork
         with ProcessPoolExecutor(max_workers=jobs, mp_context=get_context("fork")) as pool:
             futures = {pool.submit(run_one, str(p), str(out_dir), seed, bases[k]): k for k, p in enumerate(paths)}
             for f in as_completed(futures):

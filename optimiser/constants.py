@@ -344,13 +344,21 @@ def database() -> Database:
         water=water, metals=metals, references=refs)
 
 
-def corrected(constants: list[FormationConstant] | tuple[FormationConstant, ...], ionic_strength_M: ArrayLike,
-              temperature_C: ArrayLike, A: ArrayLike | None = None) -> NDArray[np.float64]:
-    """log K of several constants at the sample's conditions; shape ``broadcast(I, T).shape + (len,)``."""
-    if not constants:
+def constant_table(constants: list[FormationConstant] | tuple[FormationConstant, ...]) -> NDArray[np.float64]:
+    """The columns log K, dz2, I_ref, T_ref and dH (NaN if unknown) of several constants, shape (5, n)."""
+    return np.array([[c.log_K, c.delta_z2, c.ionic_strength_M, c.temperature_C,
+                      np.nan if c.dH_kJ_mol is None else c.dH_kJ_mol] for c in constants], dtype=float).reshape(-1, 5).T
+
+
+def corrected(constants: list[FormationConstant] | tuple[FormationConstant, ...] | NDArray[np.float64],
+              ionic_strength_M: ArrayLike, temperature_C: ArrayLike, A: ArrayLike | None = None) -> NDArray[np.float64]:
+    """log K of several constants (or their :func:`constant_table`) at the sample's conditions.
+
+    Shape ``broadcast(I, T).shape + (len,)``.
+    """
+    cols = constants if isinstance(constants, np.ndarray) else constant_table(constants)
+    if not cols.shape[1]:
         return np.zeros(np.broadcast(np.asarray(ionic_strength_M), np.asarray(temperature_C)).shape + (0,))
-    cols = np.array([[c.log_K, c.delta_z2, c.ionic_strength_M, c.temperature_C,
-                      np.nan if c.dH_kJ_mol is None else c.dH_kJ_mol] for c in constants]).T
     I = np.asarray(ionic_strength_M, dtype=float)[..., None]
     T = np.asarray(temperature_C, dtype=float)[..., None]
     A_ = None if A is None else np.asarray(A, dtype=float)[..., None]

@@ -436,7 +436,8 @@ def _solve_batch(plans: Sequence[_Plan], grids: Sequence[Array | None]) -> list[
         labels = [f"{'back-titrant' if plans[k].method.mode == 'back' else 'titrant'} volume {v:.4f} mL "
                   f"(pH {plans[k].method.pH:.2f}, {plans[k].method.titrant}, {plans[k].method.indicator})"
                   for k in ks for v in grids[k]]
-        eq = solve(system, T, pH=pH, ionic_strength_M=I, temperature_C=Tc, point_labels=labels)
+        restart = np.concatenate([np.arange(len(grids[k])) == 0 for k in ks])  # continuation within each curve
+        eq = solve(system, T, pH=pH, ionic_strength_M=I, temperature_C=Tc, point_labels=labels, restart=restart)
         start = 0
         for k in ks:
             n = len(grids[k])

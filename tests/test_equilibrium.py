@@ -43,6 +43,27 @@ def test_random_batch_converges_everywhere(metals, ligands):
     assert (eq.saturation_index <= 1e-6).all()  # no solid left supersaturated
 
 
+@pytest.mark.parametrize("metals,ligands", SYSTEMS, ids=["hardness", "cyanide", "EGTA", "acid", "copper(I)"])
+def test_random_batch_with_free_pH_and_computed_ionic_strength(metals, ligands):
+    """1000 random points with the pH free (proton excess -0.05 to 0.05 M) and the ionic strength from the species.
+
+    Regression: hardness and EGTA failed here (stalled near 1e-9) while the solid amounts came from the normal
+    equations, which lose precision when a trace metal and a major one precipitate together.
+    """
+    rng = np.random.default_rng(11)
+    s = build_system(metals, ligands)
+    B = 1000
+    T = 10 ** rng.uniform(-10, 0, size=(B, len(s.components)))
+    T[rng.random(T.shape) < 0.1] = 0.0
+    T[:, -1] = rng.uniform(-0.05, 0.05, B)
+    eq = solve(s, T, pH=None, ionic_strength_M=None)
+    assert np.isfinite(eq.c).all() and np.isfinite(eq.pH).all()
+    assert mass_balance_error(eq) <= 1.0001e-10
+    assert (eq.solid_amount >= 0).all() and (eq.saturation_index <= 1e-6).all()
+    I = 0.5 * eq.c @ s.charge.astype(float) ** 2
+    assert eq.ionic_strength_M == pytest.approx(I, rel=1e-10)
+
+
 @settings(max_examples=40, deadline=None)
 @given(st.floats(0, 14), st.floats(-10, 0), st.floats(-10, 0), st.floats(-6, 0))
 def test_mass_balances_hold(pH, log_m, log_y, log_l):
@@ -108,7 +129,7 @@ def test_bad_totals_are_refused():
 
 
 def test_batch_as_long_as_the_species_list():
-    """Regression: a batch with exactly as many points as the system has species (continuation subsampling)."""
+    """Regression: a batch with exactly as many points as the system has species (no (B, S) shape mix-up)."""
     s = build_system(("Ca", "Mg", "Zn"), ("EDTA", "NH3", "EBT"))
     B = len(s.species)
     assert B >= 32  # long enough for the continuation path
@@ -116,3 +137,46 @@ def test_batch_as_long_as_the_species_list():
     T[:, 3] = np.linspace(0, 0.003, B)
     eq = solve(s, T, pH=10.0, ionic_strength_M=0.1)
     assert mass_balance_error(eq) <= 1.0001e-10
+
+
+def _mg_edta_curve(n):
+    """Mg 0.01 M at pH 11 titrated with EDTA: Mg(OH)2 present at the start, dissolved past equivalence."""
+    T = np.zeros((n, 3))
+    T[:, 0] = 0.01
+    T[:, 1] = np.linspace(0.0, 0.015, n)
+    return T
+
+
+def test_a_curve_in_one_call_agrees_with_each_point_alone():
+    """Continuation along the batch (extrapolated starts) reaches the same solution as a start from the totals."""
+    s = build_system(("Mg",), ("EDTA",))
+    T = _mg_edta_curve(120)
+    curve = solve(s, T, pH=11.0, ionic_strength_M=0.1)
+    alone = [solve(s, T[k], pH=11.0, ionic_strength_M=0.1) for k in range(0, 120, 7)]
+    for k, eq in zip(range(0, 120, 7), alone):
+        assert curve.c[k] == pytest.approx(eq.c[0], rel=1e-8, abs=1e-30)
+        assert curve.solids_present(k) == eq.solids_present(0)
+    present = curve.solid_amount[:, 0] > 0
+    assert present[0] and not present[-1]  # Mg(OH)2 dissolves along the curve
+    assert mass_balance_error(curve) <= 1.0001e-10
+
+
+def test_order_of_the_batch_does_not_change_the_answer():
+    """Shuffled, the points no longer continue one another (unrelated guesses are replaced); same solution."""
+    s = build_system(("Mg",), ("EDTA",))
+    T = _mg_edta_curve(80)
+    order = np.random.default_rng(3).permutation(80)
+    ordered = solve(s, T, pH=11.0, ionic_strength_M=0.1)
+    shuffled = solve(s, T[order], pH=11.0, ionic_strength_M=0.1)
+    assert shuffled.c == pytest.approx(ordered.c[order], rel=1e-8, abs=1e-30)
+    assert (shuffled.solid_amount > 0).tolist() == (ordered.solid_amount[order] > 0).tolist()
+
+
+def test_restart_marks_independent_curves():
+    """Two curves in one batch, the second marked as a restart: each agrees with its own solve."""
+    s = build_system(("Mg",), ("EDTA",))
+    a, b = _mg_edta_curve(40), _mg_edta_curve(40)[::-1] * 0.5
+    both = solve(s, np.vstack([a, b]), pH=np.r_[np.full(40, 11.0), np.full(40, 10.0)], ionic_strength_M=0.1,
+                 restart=np.arange(80) == 40)
+    second = solve(s, b, pH=10.0, ionic_strength_M=0.1)
+    assert both.c[40:] == pytest.approx(second.c, rel=1e-8, abs=1e-30)
