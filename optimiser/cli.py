@@ -280,10 +280,9 @@ def _cmd_run(a) -> int:
     html_path, json_path = report.write(result, Path(a.out), dumps(to_json(result)))
     e = result.recommended
     print(f"{sc.name}: {result.evaluations} evaluations in {result.wall_time_s:.1f} s (seed {seed})")
-    if e is None:
-        for note in result.notes:
-            print(f"  {note}")
-    else:
+    for note in result.notes:
+        print(f"  {note}")
+    if e is not None:
         c = e.candidate
         print(f"  recommended: {c.titrant} {sc.titrant_conc_M:g} M, pH {c.pH:.2f} ({c.buffer}), {c.indicator}, "
               + (", ".join(f"{m} {d * 1000:.3g} mM" for m, d in c.masking) or "no masking")

@@ -549,6 +549,13 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 40, n_gen: int
         chosen = replace(chosen, titration=rec_t, error_percent=rec_t.error_percent, sharpness_mL=rec_t.sharpness_mL)
         if with_robustness:
             pH_w, doses, scan_pH, scan_dose = robustness(scenario, chosen)
+        target = scenario.targets.max_error_percent
+        if abs(rec_t.error_percent) > target:
+            worst = max(rec_t.cotitrated.items(), key=lambda kv: kv[1], default=None)
+            why = (f"; {worst[0]} is {100 * worst[1]:.0f} % co-titrated at the end point" if worst and worst[1] > 0.01 else "")
+            notes.append(f"No method in the search space meets the error target of {target:g} %: the recommendation is "
+                         f"the closest compromise found (predicted error {rec_t.error_percent:+.2f} %{why}). Widen the "
+                         "search (pH range, titrants, masking agents) or separate the interferent before the titration.")
     else:
         counts: dict[str, int] = {}
         simulated = [e for e in all_evals if e.titration is not None] or all_evals  # past the quick checks first

@@ -99,6 +99,24 @@ titrant: {concentration: 0.01 M, burette: 25 mL}
     assert "burette" in r.notes[0]
 
 
+def test_a_recommendation_that_misses_the_target_says_so():
+    """Ni beside Co: log K(NiY) - log K(CoY) is about 2.3 (NIST SRD 46), too little for a 0.5 % titration of Ni with
+    10 % Co by pH control alone, and no masking is allowed here: the closest method comes with a note naming Co."""
+    sc = parse("""
+name: nickel-with-cobalt
+sample: {volume: 25 mL}
+analyte: {metals: {Ni: 2 mmol/L}}
+interferents: {Co: 0.2 mmol/L}
+titrant: {concentration: 0.01 M}
+search: {max_masking_agents: 0}
+targets: {max_error_percent: 0.5}
+""", "x.yaml")
+    r = run_search(sc, seed=1, pop_size=20, n_gen=6, with_robustness=False)
+    assert r.recommended is not None and abs(r.recommended_titration.error_percent) > 0.5
+    note = next(n for n in r.notes if n.startswith("No method in the search space meets the error target of 0.5 %"))
+    assert "Co is" in note and "co-titrated" in note
+
+
 METALS = ["Mg", "Ca", "Sr", "Ba", "Mn", "Fe(II)", "Fe(III)", "Co", "Ni", "Cu", "Zn", "Cd", "Hg", "Pb", "Al", "Bi"]
 
 
