@@ -33,7 +33,7 @@ from .errors import ConvergenceError, InputError
 Array = NDArray[np.float64]
 LOG_MIN = kernel.LOG_MIN  # log10 of an absent component's free concentration
 REL_TOL = 1e-10
-I_TOL = 1e-11  # relative change of a computed ionic strength at which its fixed-point iteration stops
+I_TOL = 1e-9  # relative change of a computed ionic strength at which its iteration stops (the solve's own noise is 1e-10)
 
 
 @dataclass(frozen=True)
@@ -102,11 +102,21 @@ class ChemicalSystem:
         lk0 = np.stack([memo[r][0] for r in rows])[where]
         ls0 = np.stack([memo[r][1] for r in rows])[where]
         Af = (np.array([memo[r][2] for r in rows])[where] * davies_f(I.reshape(-1)))[:, None]
-        dz2_species = np.zeros(len(self.species))
-        dz2_species[mask] = species_table[1]
-        lk = lk0 + Af * dz2_species[None, :]
+        lk = lk0 + Af * self.charge_terms[0][None, :]
         ls = ls0 + Af * solid_table[1][None, :]
         return lk.reshape(I.shape + (-1,)), ls.reshape(I.shape + (-1,))
+
+    @cached_property
+    def charge_terms(self) -> tuple[Array, Array]:
+        """Davies charge terms dz2 of the species (0 for the free components) and of the solids."""
+        species_table, mask, solid_table = self._tables
+        dz2 = np.zeros(len(self.species))
+        dz2[mask] = species_table[1]
+        return dz2, np.ascontiguousarray(solid_table[1], dtype=float)
+
+    @cached_property
+    def charge_squared(self) -> Array:
+        return np.ascontiguousarray(self.charge.astype(float) ** 2)
 
     @cached_property
     def _log_K_memo(self) -> dict[tuple[float, float], tuple[Array, Array, float]]:
@@ -231,10 +241,6 @@ class Equilibrium:
         return [s for s, n in zip(self.system.solids, self.solid_amount[point]) if n > threshold]
 
 
-def _ionic_strength(system: ChemicalSystem, c: Array, background: Array) -> Array:
-    return 0.5 * c @ (system.charge.astype(float) ** 2) + background
-
-
 def solve(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None = None, ionic_strength_M: ArrayLike | None = 0.1,
           temperature_C: ArrayLike = 25.0, *, pH_scale: str = "activity", background_ionic_strength_M: ArrayLike = 0.0,
           A: ArrayLike | None = None, log_Kw_shift: ArrayLike = 0.0, include_solids: bool = True,
@@ -294,48 +300,37 @@ def solve(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None = None
     P_used = nu_s_all.shape[0] if include_solids else 0
     # water activity enters once per H2O consumed, i.e. once per H+ released (hydroxo species and solids)
     shift_w = np.broadcast_to(np.asarray(log_Kw_shift, dtype=float), (B,))[:, None]
-    shift_sp = np.maximum(-nu[:, iH], 0.0)[None, :] * shift_w
-    shift_s = np.maximum(-nu_s_all[:, iH], 0.0)[None, :] * shift_w
     unknown = list(range(C)) if free_pH else mass_cols
     A_T = davies_A(temp) if A is None else np.broadcast_to(np.asarray(A, dtype=float), (B,))
     chain = np.ones(B, dtype=bool) if restart is None else ~np.broadcast_to(np.asarray(restart, dtype=bool), (B,))
-    x = None
-    iterations = 0
-    for _outer in range(60):
-        logK, logKs = system.log_K(I, temp, A)
-        logK, logKs = logK + shift_sp, logKs + shift_s
-        if free_pH:
-            K_eff, Ks_eff = logK, logKs
-        else:
-            log_cH = -pH_arr if pH_scale == "concentration" else -pH_arr + A_T * davies_f(I)
-            K_eff = logK + nu[:, iH][None, :] * log_cH[:, None]
-            Ks_eff = logKs + nu_s_all[:, iH][None, :] * log_cH[:, None]
-        fcol = unknown.index(iH) if free_pH else None
-        # the first pass goes along the batch (continuation); later passes start each point from its own
-        # solution at the previous ionic strength
-        x, solids_amt, active, c, it, resid = _solve_fixed_I(
-            nu[:, unknown], K_eff, T_tot[:, unknown], nu_s_all[:P_used][:, unknown], Ks_eff[:, :P_used], x,
-            chain=chain, free_pH_col=fcol, tol=tol, labels=point_labels)
-        iterations += it
-        if not auto_I:
-            break
-        I_new = _ionic_strength(system, c, bg)
-        # 1e-11 relative in I moves a log K by less than 1e-10 (A dz2 f'(I) I < 10): below the mass-balance tolerance
-        done = np.max(np.abs(I_new - I) / np.maximum(I_new, 1e-300)) < I_TOL
-        I = I_new
-        if done:
-            break
-    log_free = np.zeros((B, C))
-    log_free[:, unknown] = x
+    # constants at I = 0 (with the water-activity shift: once per H+ released by a hydroxo species or solid);
+    # the kernel moves them to each point's ionic strength and folds in a fixed pH
+    K0, Ks0 = system.log_K(np.zeros(B), temp, A)
+    K0 = K0 + np.maximum(-nu[:, iH], 0.0)[None, :] * shift_w
+    Ks0 = (Ks0 + np.maximum(-nu_s_all[:, iH], 0.0)[None, :] * shift_w)[:, :P_used]
+    dz2, dz2_s = system.charge_terms
+    hco = np.zeros(len(nu)) if free_pH else nu[:, iH].copy()
+    hco_s = np.zeros(P_used) if free_pH else nu_s_all[:P_used, iH].copy()
+    pH_term = np.zeros(B) if free_pH else -pH_arr
+    activity = not free_pH and pH_scale == "activity"
+    x, solids_amt, active, c, I, iterations, resid = _run_kernel(
+        system, nu[:, unknown], nu_s_all[:P_used][:, unknown], K0, dz2, hco, Ks0, dz2_s[:P_used], hco_s, A_T, pH_term,
+        activity, T_tot[:, unknown], I, bg, auto_I, chain, unknown.index(iH) if free_pH else None, tol, point_labels)
+    # the constants at the ionic strength reached, for the saturation indices (and the pH when it is free)
+    Af = (A_T * davies_f(I))[:, None]
+    log_cH = x[:, unknown.index(iH)] if free_pH else (pH_term + (Af[:, 0] if activity else 0.0))
+    Ks_I = Ks0 + Af * dz2_s[None, :P_used] + hco_s[None, :] * (log_cH[:, None] if not free_pH else 0.0)
     if free_pH:
-        log_cH = x[:, unknown.index(iH)]
-        pH_arr = -log_cH if pH_scale == "concentration" else -(log_cH - A_T * davies_f(I))
-    else:
+        pH_arr = -log_cH if pH_scale == "concentration" else -(log_cH - Af[:, 0])
+    si = np.zeros((B, nu_s_all.shape[0]))
+    si[:, :P_used] = x @ nu_s_all[:P_used][:, unknown].T + Ks_I
+    if P_used < nu_s_all.shape[0]:  # solids not allowed: their saturation index all the same
+        log_free = np.zeros((B, C))
+        log_free[:, unknown] = x
         log_free[:, iH] = log_cH
-    if free_pH:
-        si = log_free @ nu_s_all.T + logKs
-    else:
-        si = log_free[:, mass_cols] @ nu_s_all[:, mass_cols].T + Ks_eff
+        _, Ks_all = system.log_K(I, temp, A)
+        Ks_all = Ks_all + np.maximum(-nu_s_all[:, iH], 0.0)[None, :] * shift_w
+        si[:, P_used:] = (log_free @ nu_s_all.T + Ks_all)[:, P_used:]
     amounts = np.zeros((B, nu_s_all.shape[0]))
     amounts[:, :P_used] = solids_amt
     present = np.zeros_like(amounts, dtype=bool)
@@ -350,17 +345,19 @@ def warm_up() -> None:
     solve(build_system(("Ca",), ("EDTA",)), [0.001, 0.001, 0.0], pH=10.0)
 
 
-def _solve_fixed_I(nu: Array, K: Array, T: Array, nu_s: Array, Ks: Array, x0: Array | None, chain: NDArray[np.bool_],
-                   free_pH_col: int | None, tol: float, labels: Sequence[str] | None, max_iter: int = 300):
-    """Solve B points at a fixed ionic strength with the compiled kernel (:mod:`optimiser.kernel`).
+def _run_kernel(system: ChemicalSystem, nu: Array, nu_s: Array, K0: Array, dz2: Array, hco: Array, Ks0: Array,
+                dz2_s: Array, hco_s: Array, A: Array, pH_term: Array, activity: bool, T: Array, I: Array, bg: Array,
+                auto_I: bool, chain: NDArray[np.bool_], free_pH_col: int | None, tol: float,
+                labels: Sequence[str] | None, max_iter: int = 300):
+    """Solve B points with the compiled kernel (:func:`optimiser.kernel.solve_points`, which documents the arrays).
 
-    Shapes: nu (S, n), K (B, S), T (B, n), nu_s (P, n), Ks (B, P); ``x0`` (B, n) starts each point from its
-    own guess; None starts where ``chain`` is False from the totals (continued fractions), elsewhere from the
-    previous point's solution.
+    Shapes: nu (S, n), nu_s (P, n), K0 (B, S), Ks0 (B, P), T (B, n). Points where ``chain`` is False start
+    from the totals (continued fractions), the others from the previous points' solutions.
 
     Returns
     -------
-    x, solid amounts, solids present, species concentrations, most iterations of any point, largest residual
+    x, solid amounts, solids present, species concentrations, ionic strength, most iterations of any point,
+    largest residual
 
     Raises
     ------
@@ -374,22 +371,23 @@ def _solve_fixed_I(nu: Array, K: Array, T: Array, nu_s: Array, Ks: Array, x0: Ar
         active_c[:, free_pH_col] = True
     ptr, col, val = _csr(nu)
     nmax = np.maximum(np.where(nu > 0, nu, 0.0).max(axis=0, initial=0.0), 1.0)
-    use_x0 = np.full(B, x0 is not None)
-    x0_ = np.zeros((B, n)) if x0 is None else np.ascontiguousarray(x0, dtype=float)
     x, s, c = np.empty((B, n)), np.empty((B, P)), np.empty((B, S))
     W = np.empty((B, P), dtype=bool)
-    its, res, status = np.empty(B, dtype=np.int64), np.empty(B), np.empty(B, dtype=np.int64)
-    kernel.solve_points(ptr, col, val, nmax, np.ascontiguousarray(nu_s, dtype=float), np.ascontiguousarray(K, dtype=float),
-                        np.ascontiguousarray(T, dtype=float), np.ascontiguousarray(Ks, dtype=float).reshape(B, P), x0_,
-                        use_x0, active_c, -1 if free_pH_col is None else int(free_pH_col), chain, float(tol), int(max_iter),
-                        x, s, W, c, its, res, status)
+    I_out, its, res, status = np.empty(B), np.empty(B, dtype=np.int64), np.empty(B), np.empty(B, dtype=np.int64)
+    f64 = np.ascontiguousarray
+    kernel.solve_points(ptr, col, val, nmax, f64(nu_s, dtype=float), system.charge_squared, f64(K0, dtype=float), dz2,
+                        f64(hco, dtype=float), f64(Ks0, dtype=float).reshape(B, P), f64(dz2_s, dtype=float),
+                        f64(hco_s, dtype=float), f64(A, dtype=float), f64(pH_term, dtype=float), bool(activity),
+                        f64(T, dtype=float), f64(I, dtype=float), f64(bg, dtype=float), bool(auto_I), I_TOL, active_c,
+                        -1 if free_pH_col is None else int(free_pH_col), chain, float(tol), int(max_iter),
+                        x, s, W, c, I_out, its, res, status)
     bad = (status != kernel.CONVERGED) | ~np.isfinite(x).all(axis=1)
     if bad.any():
         b = int(np.nonzero(bad)[0][0])
         label = labels[b] if labels is not None else f"point {b}"
         raise ConvergenceError(f"equilibrium did not converge at {label} (of {B}) in {max_iter} iterations: largest relative "
                                f"mass-balance residual {res[b]:.2e}, totals {T[b].tolist()}")
-    return x, s, W, c, int(its.max(initial=0)), float(res.max(initial=0.0))
+    return x, s, W, c, I_out, int(its.max(initial=0)), float(res.max(initial=0.0))
 
 
 def _csr(nu: Array) -> tuple[NDArray[np.int64], NDArray[np.int64], Array]:

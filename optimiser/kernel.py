@@ -29,6 +29,7 @@ LOG_MIN = -330.0  # log10 of an absent component's free concentration
 CAP = 4.0  # largest Newton step in any log10 concentration
 PCF_FRESH, PCF_GUESS = 15, 3  # continued-fraction sweeps from the totals, and from a guess
 GUESS_LIMIT = 1.0  # largest relative mass-balance error of a guess that is kept
+MAX_PASSES = 60  # ionic-strength passes at one point, at most
 
 # status codes returned per point
 CONVERGED, NOT_CONVERGED = 0, 1
@@ -251,9 +252,165 @@ def _delta_f(nu_ptr, nu_col, nu_val, c, T, dx, alpha, act, e):
 
 
 @njit(cache=True)
-def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, K, T, Ks, x0, use_x0, active_c, free_col, chain, tol, max_iter,
-                 x_out, s_out, W_out, c_out, it_out, res_out, status):
+def _at_ionic_strength(K0, dz2, hco, Ks0, dz2_s, hco_s, A, pH_term, activity, I, K, Ks):
+    """Constants at ionic strength I, in K and Ks: log K = log K(0) + A dz2 f(I) + h log [H+] (fixed pH).
+
+    f is the Davies function sqrt(I)/(1 + sqrt(I)) - 0.3 I (Davies, Ion Association, 1962).
+    """
+    r = np.sqrt(I)
+    Af = A * (r / (1.0 + r) - 0.3 * I)
+    log_cH = pH_term + (Af if activity else 0.0)
+    for sp in range(len(K)):
+        K[sp] = K0[sp] + Af * dz2[sp] + hco[sp] * log_cH
+    for p in range(len(Ks)):
+        Ks[p] = Ks0[p] + Af * dz2_s[p] + hco_s[p] * log_cH
+
+
+@njit(cache=True)
+def _newton(nu_ptr, nu_col, nu_val, nu_s, Kb, Tb, Ksb, act, free_col, tol, max_iter, x, W, s, c, c_ready,
+            e, R, scale, dx, J, M, rhs, SI, Aw, v, y):
+    """Newton iterations at one point from x (active set W, amounts s), in place.
+
+    ``c_ready`` says that c already holds the concentrations at x. Returns (converged, iterations,
+    largest relative mass-balance residual).
+    """
+    n = len(x)
+    S = len(c)
+    P = nu_s.shape[0]
+    N = n + P
+    worst = np.inf
+    it = 0
+    while it < max_iter:
+        it += 1
+        if not c_ready:
+            _concentrations(nu_ptr, nu_col, nu_val, Kb, x, act, c)
+        c_ready = False
+        R[:] = 0.0
+        scale[:] = 0.0
+        for sp in range(S):
+            cs = c[sp]
+            if cs != 0.0:
+                for k in range(nu_ptr[sp], nu_ptr[sp + 1]):
+                    R[nu_col[k]] += nu_val[k] * cs
+                    scale[nu_col[k]] += abs(nu_val[k]) * cs
+        for i in range(n):
+            R[i] = R[i] - Tb[i] if act[i] else 0.0
+            scale[i] += abs(Tb[i]) + 1e-300
+        for p in range(P):
+            si = Ksb[p]
+            for i in range(n):
+                si += nu_s[p, i] * x[i]
+            SI[p] = si
+        # solid amounts from the mass balances (weighted least squares over the active solids): more
+        # accurate than the KKT multipliers, which carry the conditioning of the scaled system
+        _solid_amounts(nu_s, W, R, scale, s, Aw, v, y)
+        # convergence: mass balances with the current solid amounts relative to the totals (1e-10), and the
+        # solids consistent; the active set is settled once the balances close relative to everything
+        # that enters them, the solid amounts included (a solid with a negative amount can hold a
+        # balance far above its total, where rounding alone exceeds the tolerance)
+        worst = 0.0
+        settled = True
+        for i in range(n):
+            if act[i]:
+                rt = R[i]
+                sc = scale[i]
+                for p in range(P):
+                    rt += s[p] * nu_s[p, i]
+                    sc += abs(s[p] * nu_s[p, i])
+                # the proton balance is an excess (a difference of terms): relative to its terms
+                worst = max(worst, abs(rt / (Tb[i] if Tb[i] > 0 and i != free_col else sc)))
+                settled = settled and abs(rt) <= tol * sc
+        over = -1  # the most supersaturated solid not in the set
+        for p in range(P):
+            if (W[p] and abs(SI[p]) > 1e-9) or (not W[p] and SI[p] > 1e-9):
+                settled = False
+            if not W[p] and SI[p] > 1e-9 and (over < 0 or SI[p] > SI[over]):
+                over = p
+        if worst <= tol and over >= 0:  # balances closed with a solid supersaturated: it precipitates
+            W[over] = True
+        if settled:
+            jneg = -1
+            for p in range(P):
+                if W[p] and s[p] < -1e-16 * max(1.0, abs(s[p])):
+                    if jneg < 0 or s[p] < s[jneg]:
+                        jneg = p
+            if jneg >= 0:  # a negative solid amount: that solid dissolves
+                W[jneg] = False
+                s[jneg] = 0.0
+            elif worst <= tol:
+                return True, it, worst
+        # Newton direction: the KKT system of the active set, mass-balance rows scaled by their totals
+        J[:, :] = 0.0
+        for sp in range(S):
+            cs = LN10 * c[sp]
+            if cs != 0.0:
+                for k in range(nu_ptr[sp], nu_ptr[sp + 1]):
+                    vi = nu_val[k] * cs
+                    for k2 in range(nu_ptr[sp], nu_ptr[sp + 1]):
+                        J[nu_col[k], nu_col[k2]] += vi * nu_val[k2]
+        _kkt(J, R, scale, SI, nu_s, W, act, M, rhs)
+        if not _gauss(M, rhs, N):  # singular (a degenerate active set): least squares
+            _kkt(J, R, scale, SI, nu_s, W, act, M, rhs)
+            sol = np.linalg.lstsq(M, rhs)[0]
+            rhs[:] = sol
+        for i in range(n):
+            dx[i] = rhs[i] if act[i] else 0.0
+        # step: cap, ratio test against the inactive solids, then Armijo backtracking on f
+        big = 0.0
+        for i in range(n):
+            big = max(big, abs(dx[i]))
+        cap = CAP / big if big > CAP else 1.0
+        alpha = cap
+        block = -1
+        for p in range(P):
+            if not W[p]:
+                rate = 0.0
+                for i in range(n):
+                    rate += dx[i] * nu_s[p, i]
+                if rate > 1e-14:
+                    lim = max(-SI[p], 0.0) / rate
+                    if lim < alpha:
+                        alpha = lim
+                        block = p
+        slope = 0.0
+        for i in range(n):
+            if act[i]:
+                slope += R[i] * dx[i]
+        if worst >= 1e-5 and slope < 0:  # outside the Newton region (there f's rounding would fool Armijo)
+            accepted = False
+            for _ in range(40):
+                if _delta_f(nu_ptr, nu_col, nu_val, c, Tb, dx, alpha, act, e) <= 1e-4 * alpha * slope:
+                    accepted = True
+                    break
+                alpha *= 0.5
+                block = -1
+            if accepted:  # the concentrations at the new point follow from the line search's terms
+                c_ready = True
+                for sp in range(S):
+                    cn = c[sp] + c[sp] * e[sp]
+                    if not cn <= 1e300:  # past the cap (or not finite): computed afresh
+                        c_ready = False
+                    c[sp] = cn
+            else:  # backtracking exhausted (rounding in f): take the capped Newton step
+                alpha = cap
+        for i in range(n):
+            x[i] = x[i] + alpha * dx[i] if act[i] else LOG_MIN
+        if block >= 0:
+            W[block] = True
+    return False, it, worst
+
+
+@njit(cache=True)
+def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, z2, K0, dz2, hco, Ks0, dz2_s, hco_s, A, pH_term, activity, T,
+                 I_in, bg, auto_I, I_tol, active_c, free_col, chain, tol, max_iter,
+                 x_out, s_out, W_out, c_out, I_out, it_out, res_out, status):
     """Solve B points, one after the other.
+
+    The constants of each point are made here from their value at I = 0 (see :func:`_at_ionic_strength`),
+    so that, with ``auto_I``, the ionic strength can follow the species: after each converged solve it is
+    recomputed, the constants moved to it and the solve continued from the same solution, until it changes
+    by less than ``I_tol`` (relative), the next value by a chord step. Along a batch each point starts
+    from the previous point's value.
 
     Parameters
     ----------
@@ -263,10 +420,26 @@ def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, K, T, Ks, x0, use_x0, activ
         Largest positive coefficient of each component (continued-fraction step divisor, at least 1).
     nu_s : ndarray, shape (P, n)
         Stoichiometry of the solids.
-    K, T, Ks : ndarray, shapes (B, S), (B, n), (B, P)
-        log10 species constants, totals [mol/L], log10 solid formation constants (SI = nu_s . x + Ks).
-    x0 : ndarray, shape (B, n)
-        Starting log10 free concentrations, used where ``use_x0``.
+    z2 : ndarray, shape (S,)
+        Squared charge of each species.
+    K0, Ks0 : ndarray, shapes (B, S), (B, P)
+        log10 constants of the species and the solids at I = 0 and the point's temperature.
+    dz2, dz2_s : ndarray, shapes (S,), (P,)
+        Their Davies charge terms (sum of z^2 of the products minus that of the reactants).
+    hco, hco_s : ndarray, shapes (S,), (P,)
+        Their H+ coefficients where the pH is fixed (folded into the constants), zeros where it is free.
+    A, pH_term : ndarray, shape (B,)
+        Davies A, and -pH where the pH is fixed.
+    activity : bool
+        The fixed pH is -log a(H+) (so log [H+] = -pH + A f(I)), not -log [H+].
+    T : ndarray, shape (B, n)
+        Totals [mol/L].
+    I_in, bg : ndarray, shape (B,)
+        The ionic strength [mol/L] (fixed, or the start without a previous point), and the background
+        electrolyte's share of a computed one.
+    auto_I : bool
+        Compute the ionic strength from the species.
+    I_tol : float
     active_c : ndarray of bool, shape (B, n)
         Components present (the others are held at LOG_MIN).
     free_col : int
@@ -278,14 +451,17 @@ def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, K, T, Ks, x0, use_x0, activ
     tol : float
         Relative mass-balance tolerance.
     max_iter : int
-    x_out, s_out, W_out, c_out, it_out, res_out, status : ndarray
+        Newton iterations allowed per solve (per ionic-strength pass).
+    x_out, s_out, W_out, c_out, I_out, it_out, res_out, status : ndarray
         Outputs: log10 free concentrations, solid amounts [mol/L], solids present, species concentrations,
-        iterations, largest relative residual, and CONVERGED or NOT_CONVERGED, per point.
+        ionic strength, iterations, largest relative residual, and CONVERGED or NOT_CONVERGED, per point.
     """
     B, n = T.shape
-    S = K.shape[1]
+    S = K0.shape[1]
     P = nu_s.shape[0]
     N = n + P
+    Kb = np.empty(S)
+    Ksb = np.empty(P)
     c = np.empty(S)
     e = np.empty(S)
     R = np.empty(n)
@@ -303,17 +479,22 @@ def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, K, T, Ks, x0, use_x0, activ
     v = np.empty(n)
     y = np.empty(n)
     x = np.empty(n)
+    slope_run = -1.0  # slope of g(I) - I carried along a run
     for b in range(B):
         act = active_c[b]
         Tb = T[b]
-        Kb = K[b]
-        Ksb = Ks[b]
-        # starting point: the point's own guess, else the previous points extrapolated along the batch
-        # (continuation: quadratic, then linear, then constant), each kept only if it closes every mass
-        # balance within a factor of about 2; else the continued fractions from the totals
-        if use_x0[b]:
-            tries = 1
-        elif chain[b] and b > 0 and status[b - 1] == CONVERGED:
+        I = I_in[b]
+        if auto_I and chain[b] and b > 0 and status[b - 1] == CONVERGED:
+            I = I_out[b - 1]  # continuation, extrapolated along the run like the concentrations
+            if b > 1 and chain[b - 1] and status[b - 2] == CONVERGED and 2.0 * I - I_out[b - 2] > 0.0:
+                I = 2.0 * I - I_out[b - 2]
+        else:
+            slope_run = -1.0
+        _at_ionic_strength(K0[b], dz2, hco, Ks0[b], dz2_s, hco_s, A[b], pH_term[b], activity, I, Kb, Ksb)
+        # starting point: the previous points extrapolated along the batch (continuation: quadratic, then
+        # linear, then constant), each kept only if it closes every mass balance within a factor of about 2;
+        # else the continued fractions from the totals
+        if chain[b] and b > 0 and status[b - 1] == CONVERGED:
             tries = 1
             while tries < 3 and b > tries and chain[b - tries] and status[b - tries - 1] == CONVERGED:
                 tries += 1
@@ -321,14 +502,14 @@ def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, K, T, Ks, x0, use_x0, activ
             tries = 0
         kept = False
         for t in range(tries):
-            order = 0 if use_x0[b] else tries - 1 - t
+            order = tries - 1 - t
             filled = False
             for i in range(n):
                 if not act[i]:
                     x[i] = LOG_MIN
                     continue
-                x1 = x0[b, i] if use_x0[b] else x_out[b - 1, i]
-                if x1 <= LOG_MIN + 1.0:  # present here, absent in the guess
+                x1 = x_out[b - 1, i]
+                if x1 <= LOG_MIN + 1.0:  # present here, absent in the previous point
                     x[i] = np.log10(Tb[i]) if Tb[i] > 0 and i != free_col else -7.0
                     filled = True
                     continue
@@ -365,121 +546,43 @@ def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, K, T, Ks, x0, use_x0, activ
         if P and _feasible(x, nu_s, Ksb, act):
             c_ready = False
         status[b] = NOT_CONVERGED
-        worst = np.inf
         it = 0
-        while it < max_iter:
-            it += 1
-            if not c_ready:
-                _concentrations(nu_ptr, nu_col, nu_val, Kb, x, act, c)
+        I_prev, h_prev, slope = I, 0.0, slope_run
+        for _pass in range(MAX_PASSES):
+            ok, it_p, worst = _newton(nu_ptr, nu_col, nu_val, nu_s, Kb, Tb, Ksb, act, free_col, tol, max_iter, x, W, s,
+                                      c, c_ready, e, R, scale, dx, J, M, rhs, SI, Aw, v, y)
+            it += it_p
+            if not ok:
+                break
+            if not auto_I:
+                status[b] = CONVERGED
+                break
+            # the ionic strength from the species; its fixed-point iteration continues from this solution
+            I_new = bg[b]
+            for sp in range(S):
+                I_new += 0.5 * z2[sp] * c[sp]
+            h = I_new - I
+            if abs(h) <= I_tol * I_new:
+                I = I_new
+                status[b] = CONVERGED
+                slope_run = slope  # the next point of the run starts with this slope
+                break
+            # chord steps on h(I) = g(I) - I = 0 with the slope from the last two passes where h stood clear of
+            # the solve's rounding (plain substitution, slope -1, oscillates where the ionic strength is large)
+            if _pass > 0 and abs(h_prev) > 1e-7 * I_new and abs(h) > 1e-7 * I_new and I != I_prev:
+                slope_new = (h - h_prev) / (I - I_prev)
+                if slope_new < -1e-3:
+                    slope = slope_new
+            I_prev, h_prev = I, h
+            I_next = I - h / slope
+            I = I_next if 0.0 < I_next < 1e3 else I_new
+            _at_ionic_strength(K0[b], dz2, hco, Ks0[b], dz2_s, hco_s, A[b], pH_term[b], activity, I, Kb, Ksb)
             c_ready = False
-            R[:] = 0.0
-            scale[:] = 0.0
-            for sp in range(S):
-                cs = c[sp]
-                if cs != 0.0:
-                    for k in range(nu_ptr[sp], nu_ptr[sp + 1]):
-                        R[nu_col[k]] += nu_val[k] * cs
-                        scale[nu_col[k]] += abs(nu_val[k]) * cs
-            for i in range(n):
-                R[i] = R[i] - Tb[i] if act[i] else 0.0
-                scale[i] += abs(Tb[i]) + 1e-300
-            for p in range(P):
-                si = Ksb[p]
-                for i in range(n):
-                    si += nu_s[p, i] * x[i]
-                SI[p] = si
-            # solid amounts from the mass balances (weighted least squares over the active solids): more
-            # accurate than the KKT multipliers, which carry the conditioning of the scaled system
-            _solid_amounts(nu_s, W, R, scale, s, Aw, v, y)
-            # convergence: mass balances with the current solid amounts relative to the totals (1e-10), and the
-            # solids consistent; the active set is settled once the balances close relative to everything
-            # that enters them, the solid amounts included (a solid with a negative amount can hold a
-            # balance far above its total, where rounding alone exceeds the tolerance)
-            worst = 0.0
-            settled = True
-            for i in range(n):
-                if act[i]:
-                    rt = R[i]
-                    sc = scale[i]
-                    for p in range(P):
-                        rt += s[p] * nu_s[p, i]
-                        sc += abs(s[p] * nu_s[p, i])
-                    # the proton balance is an excess (a difference of terms): relative to its terms
-                    worst = max(worst, abs(rt / (Tb[i] if Tb[i] > 0 and i != free_col else sc)))
-                    settled = settled and abs(rt) <= tol * sc
-            for p in range(P):
-                if (W[p] and abs(SI[p]) > 1e-9) or (not W[p] and SI[p] > 1e-9):
-                    settled = False
-            if settled:
-                jneg = -1
-                for p in range(P):
-                    if W[p] and s[p] < -1e-16 * max(1.0, abs(s[p])):
-                        if jneg < 0 or s[p] < s[jneg]:
-                            jneg = p
-                if jneg >= 0:  # a negative solid amount: that solid dissolves
-                    W[jneg] = False
-                    s[jneg] = 0.0
-                elif worst <= tol:
-                    status[b] = CONVERGED
-                    break
-            # Newton direction: the KKT system of the active set, mass-balance rows scaled by their totals
-            J[:, :] = 0.0
-            for sp in range(S):
-                cs = LN10 * c[sp]
-                if cs != 0.0:
-                    for k in range(nu_ptr[sp], nu_ptr[sp + 1]):
-                        vi = nu_val[k] * cs
-                        for k2 in range(nu_ptr[sp], nu_ptr[sp + 1]):
-                            J[nu_col[k], nu_col[k2]] += vi * nu_val[k2]
-            _kkt(J, R, scale, SI, nu_s, W, act, M, rhs)
-            if not _gauss(M, rhs, N):  # singular (a degenerate active set): least squares
-                _kkt(J, R, scale, SI, nu_s, W, act, M, rhs)
-                sol = np.linalg.lstsq(M, rhs)[0]
-                rhs[:] = sol
-            for i in range(n):
-                dx[i] = rhs[i] if act[i] else 0.0
-            # step: cap, ratio test against the inactive solids, then Armijo backtracking on f
-            big = 0.0
-            for i in range(n):
-                big = max(big, abs(dx[i]))
-            cap = CAP / big if big > CAP else 1.0
-            alpha = cap
-            block = -1
-            for p in range(P):
-                if not W[p]:
-                    rate = 0.0
-                    for i in range(n):
-                        rate += dx[i] * nu_s[p, i]
-                    if rate > 1e-14:
-                        lim = max(-SI[p], 0.0) / rate
-                        if lim < alpha:
-                            alpha = lim
-                            block = p
-            slope = 0.0
-            for i in range(n):
-                if act[i]:
-                    slope += R[i] * dx[i]
-            if worst >= 1e-5 and slope < 0:  # outside the Newton region (there f's rounding would fool Armijo)
-                accepted = False
-                for _ in range(40):
-                    if _delta_f(nu_ptr, nu_col, nu_val, c, Tb, dx, alpha, act, e) <= 1e-4 * alpha * slope:
-                        accepted = True
-                        break
-                    alpha *= 0.5
-                    block = -1
-                if accepted:  # the concentrations at the new point follow from the line search's terms
-                    c_ready = True
-                    for sp in range(S):
-                        cn = c[sp] + c[sp] * e[sp]
-                        if not cn <= 1e300:  # past the cap (or not finite): computed afresh
-                            c_ready = False
-                        c[sp] = cn
-                else:  # backtracking exhausted (rounding in f): take the capped Newton step
-                    alpha = cap
-            for i in range(n):
-                x[i] = x[i] + alpha * dx[i] if act[i] else LOG_MIN
-            if block >= 0:
-                W[block] = True
+            W[:] = False  # the solids join again from a feasible point at the new constants
+            s[:] = 0.0
+            if P:
+                _feasible(x, nu_s, Ksb, act)
+        I_out[b] = I
         for i in range(n):
             x_out[b, i] = x[i]
         for p in range(P):
