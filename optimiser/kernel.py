@@ -486,8 +486,12 @@ def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, z2, K0, dz2, hco, Ks0, dz2_
         I = I_in[b]
         if auto_I and chain[b] and b > 0 and status[b - 1] == CONVERGED:
             I = I_out[b - 1]  # continuation, extrapolated along the run like the concentrations
-            if b > 1 and chain[b - 1] and status[b - 2] == CONVERGED and 2.0 * I - I_out[b - 2] > 0.0:
-                I = 2.0 * I - I_out[b - 2]
+            if b > 1 and chain[b - 1] and status[b - 2] == CONVERGED:
+                I_lin = 2.0 * I - I_out[b - 2]
+                if b > 2 and chain[b - 2] and status[b - 3] == CONVERGED:
+                    I_lin = 3.0 * I - 3.0 * I_out[b - 2] + I_out[b - 3]
+                if I_lin > 0.0:
+                    I = I_lin
         else:
             slope_run = -1.0
         _at_ionic_strength(K0[b], dz2, hco, Ks0[b], dz2_s, hco_s, A[b], pH_term[b], activity, I, Kb, Ksb)
@@ -569,7 +573,7 @@ def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, z2, K0, dz2, hco, Ks0, dz2_
                 break
             # chord steps on h(I) = g(I) - I = 0 with the slope from the last two passes where h stood clear of
             # the solve's rounding (plain substitution, slope -1, oscillates where the ionic strength is large)
-            if _pass > 0 and abs(h_prev) > 1e-7 * I_new and abs(h) > 1e-7 * I_new and I != I_prev:
+            if _pass > 0 and abs(h_prev) > 1e-8 * I_new and abs(h) > 1e-8 * I_new and I != I_prev:
                 slope_new = (h - h_prev) / (I - I_prev)
                 if slope_new < -1e-3:
                     slope = slope_new
