@@ -205,6 +205,23 @@ def _load_scenario(path: str | None):
     return demo() if path is None else load(path)
 
 
+def _solver_ready() -> None:
+    """Compile (first run on a machine) or load the solver's kernel, saying so when that takes a while."""
+    import threading
+
+    from .equilibrium import warm_up
+
+    def note():
+        sys.stderr.write("preparing the equilibrium solver (compiled once per machine, about 10-15 s)...\n")
+        sys.stderr.flush()
+    timer = threading.Timer(1.0, note)
+    timer.start()
+    try:
+        warm_up()
+    finally:
+        timer.cancel()
+
+
 def _cmd_simulate(a) -> int:
     from .reagents import catalogue
     from .results import dumps, titration_json
@@ -212,6 +229,7 @@ def _cmd_simulate(a) -> int:
     from .titration import Method, simulate
     from .units import molarity
     sc = _load_scenario(a.scenario)
+    _solver_ready()
     cat = catalogue()
     pH = _number(a.pH, "--pH", 0, 14)
     if a.buffer:
@@ -268,6 +286,7 @@ def _cmd_run(a) -> int:
     sc = _load_scenario(a.scenario)
     seed = int(_number(a.seed, "--seed", 0, 2 ** 31 - 1))
     tty = sys.stderr.isatty()
+    _solver_ready()
 
     def progress(gen, n_gen, evals):
         msg = f"searching {sc.name}: generation {gen}/{n_gen}, {evals} evaluations"
@@ -315,6 +334,7 @@ def _cmd_batch(a) -> int:
         raise InputError("no scenario files (*.yaml, *.yml) in the paths given")
     jobs = int(_number(a.jobs, "--jobs", 1, 256)) if a.jobs else None
     seed = int(_number(a.seed, "--seed", 0, 2 ** 31 - 1))
+    _solver_ready()
     rows = run_batch(paths, Path(a.out), jobs=jobs, seed=seed, progress=True)
     for r in rows:
         print(f"{'ok    ' if r.ok else 'FAILED'} {r.name}: {r.method if r.ok else r.message}")
