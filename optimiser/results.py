@@ -113,14 +113,17 @@ def method_summary(result: SearchResult, e: Evaluation, t: Titration) -> dict[st
     if c.buffer == "NaOH" and t.precipitates_start:
         procedure.append(f"Add about 90 % of the expected titrant ({0.9 * (t.endpoint_mL or t.equivalence_mL):.1f} mL) before "
                          f"raising the pH, so that {', '.join(t.precipitates_start)} does not carry down the analyte.")
+    heated = c.mode == "back" and any("heating" in a for a in t.assumptions)
+    if heated:  # the slow analyte reacts with the excess in the still acidic sample, before its hydroxide can form
+        procedure.append(f"Add {t.excess_mL:.2f} mL of {cT:g} M {c.titrant} (an excess) to the sample before it is "
+                         "buffered (it should be acidic, about pH 3); boil gently for 3-5 minutes and cool (common practice).")
     for m in masking:
         procedure.append(f"Add {m['amount']} ({m['name']}; {m['conc_M'] * 1000:.3g} mmol/L in the aliquot).")
     procedure.append(f"Buffer ({buf.name}): " + "; ".join(recipe) + ".")
     if c.mode == "back":
-        procedure.append(f"Add {t.excess_mL:.2f} mL of {cT:g} M {c.titrant} (an excess); "
-                         + ("boil gently for 3-5 minutes and cool; " if any("heating" in a for a in t.assumptions) else "")
-                         + f"add {ind.name} ({ind.dose}) and titrate with {cT:g} M {c.back_metal} standard "
-                         f"from {t.colour_change[0]} to {t.colour_change[1]}.")
+        procedure.append(("" if heated else f"Add {t.excess_mL:.2f} mL of {cT:g} M {c.titrant} (an excess); ")
+                         + f"{'Add' if heated else 'add'} {ind.name} ({ind.dose}) and titrate with {cT:g} M "
+                         f"{c.back_metal} standard from {t.colour_change[0]} to {t.colour_change[1]}.")
     else:
         procedure.append(f"Add {ind.name} ({ind.dose}) and titrate with {cT:g} M {c.titrant} from {t.colour_change[0]} "
                          f"to {t.colour_change[1]}.")

@@ -104,6 +104,30 @@ search:
     assert "fume hood" in safety
 
 
+def test_back_titration_procedure_adds_the_excess_before_the_buffer():
+    """Al reacts slowly with EDTA: the excess goes into the acidic sample and is boiled before buffering (common
+    practice for the Al back-titration), then the buffer, then the Zn standard."""
+    sc = parse("""
+name: al-back
+sample: {volume: 25 mL}
+analyte: {metals: {Al: 2 mmol/L}}
+titrant: {concentration: 0.02 M}
+search:
+  pH: [5.0, 6.0]
+  titrants: [EDTA]
+  buffers: [acetate]
+  indicators: [xylenol_orange]
+  modes: [back]
+  back_metals: [Zn]
+""", "al.yaml")
+    r = run_search(sc, seed=1, pop_size=12, n_gen=4, with_robustness=False)
+    steps = report.method_summary(r, r.recommended, r.recommended_titration)["procedure"]
+    excess = next(k for k, x in enumerate(steps) if "(an excess)" in x)
+    buffer = next(k for k, x in enumerate(steps) if x.startswith("Buffer"))
+    titrate = next(k for k, x in enumerate(steps) if "Zn standard" in x)
+    assert excess < buffer < titrate and "boil" in steps[excess]
+
+
 @pytest.mark.browser
 def test_report_renders_in_headless_chromium(written, tmp_path):
     """Open the report from a file URL in Debian's chromium: no console errors, every figure has a size; screenshot."""
