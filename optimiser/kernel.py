@@ -9,12 +9,18 @@ whose gradient is the residual ``R = nu^T c - T`` and whose Hessian ``ln10 nu^T 
 A solid is the linear constraint ``SI_p(x) = nu_p . x + Ks_p <= 0``; where it is active (present) its amount
 is the constraint's multiplier. Each iteration solves the KKT system of the active set, limits the step by
 the inactive solids (ratio test: a solid that becomes saturated joins the set), and backtracks on f
-(Armijo, on a change of f computed without cancellation), which makes the method globally convergent; a
-solid whose amount turns negative at convergence leaves the set (it dissolves).
+(Armijo, on a change of f computed without cancellation), which makes the method globally convergent. The
+solid amounts come from the mass balances by least squares (Householder QR); once the balances have closed,
+a solid with a negative amount leaves the set (it dissolves) and a supersaturated one joins it.
 
-Starting points: a positive-continued-fraction iteration (Carrayrou, Mose and Behra, AIChE J. 48 (2002) 894)
-from the totals, or, along a batch given in order (a titration curve, a population), the solution of the
-previous point (continuation), refitted to this point's totals by a few of the same sweeps.
+Starting points: along a batch given in order (a titration curve, a population), the solutions of the
+previous points extrapolated to this one (continuation), kept where they close every mass balance within
+GUESS_LIMIT; else a positive-continued-fraction iteration from the totals (Carrayrou, Mose and Behra,
+AIChE J. 48 (2002) 894).
+
+Ionic strength: the constants of each point are built here from their values at I = 0 (Davies term and a
+fixed pH added); where the ionic strength is computed from the species, each converged solve is followed by
+a chord step on I and a new solve from the same solution, until I changes by less than its tolerance.
 
 The kernel is written for numba's ``njit`` on plain arrays, one point at a time; the point loop is
 compiled too, so a whole curve is one call. With ``NUMBA_DISABLE_JIT=1`` the same code runs as Python.
