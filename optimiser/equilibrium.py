@@ -308,6 +308,8 @@ def solve(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None = None
     shift_w = np.broadcast_to(np.asarray(log_Kw_shift, dtype=float), (B,))[:, None]
     unknown = list(range(C)) if free_pH else mass_cols
     A_T = davies_A(temp) if A is None else np.broadcast_to(np.asarray(A, dtype=float), (B,))
+    if restart is not None and np.shape(restart) not in ((), (B,)):
+        raise InputError(f"restart needs one flag per point ({B}), got shape {np.shape(restart)}")
     chain = np.ones(B, dtype=bool) if restart is None else ~np.broadcast_to(np.asarray(restart, dtype=bool), (B,))
     # constants at I = 0 (with the water-activity shift: once per H+ released by a hydroxo species or solid);
     # the kernel moves them to each point's ionic strength and folds in a fixed pH

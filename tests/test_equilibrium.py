@@ -126,6 +126,8 @@ def test_bad_totals_are_refused():
         solve(s, [0.01, 0.01], pH=10.0)
     with pytest.raises(InputError):
         solve(s, [0.01, 0.01, 0.0], pH=15.0)
+    with pytest.raises(InputError, match="one flag per point"):
+        solve(s, [[0.01, 0.01, 0.0]] * 3, pH=10.0, restart=[True, False])
 
 
 def test_batch_as_long_as_the_species_list():
