@@ -246,6 +246,15 @@ class Equilibrium:
     def solids_present(self, point: int, threshold: float = 1e-12) -> list[str]:
         return [s for s, n in zip(self.system.solids, self.solid_amount[point]) if n > threshold]
 
+    def mass_balance_error(self) -> float:
+        """Largest relative mass-balance error over the points and the metals and ligands, recomputed from the
+        species and solids returned (an independent check of the solver's own residual)."""
+        nu = self.system.nu[:, :-1].astype(float)  # every component but H+ (last)
+        held = self.c @ nu + (self.solid_amount @ self.system.nu_solid[:, :-1] if self.system.solids else 0.0)
+        tot = self.totals[:, :-1]
+        m = tot > 0
+        return float(np.max(np.abs(held[m] - tot[m]) / tot[m], initial=0.0))
+
 
 def solve(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None = None, ionic_strength_M: ArrayLike | None = 0.1,
           temperature_C: ArrayLike = 25.0, *, pH_scale: str = "activity", background_ionic_strength_M: ArrayLike = 0.0,

@@ -207,6 +207,7 @@ def titration_json(t: Titration, every: int = 1) -> dict[str, Any]:
         "blocked_by": list(t.blocked_by), "colour_change": list(t.colour_change), "mode": t.method.mode,
         "excess_mL": _r(t.excess_mL), "pH_drift": _r(t.pH_drift), "drop_mL": DROP_mL,
         "warnings": list(t.warnings), "assumptions": list(t.assumptions),
+        "mass_balance_error": float(f"{t.mass_balance_error:.2e}"),
         "curve": {"volume_mL": [_r(v) for v in V[::every]],
                   "pM": {m: [_r(v) for v in arr[::every]] for m, arr in t.pM.items()},
                   "indicator_turned": [_r(v) for v in t.turned[::every]]},

@@ -258,6 +258,7 @@ class Titration:
     indicator_blank_percent: float | None = None
     slow_analytes: tuple[str, ...] = ()
     analyte_precipitates: tuple[str, ...] = ()
+    mass_balance_error: float = 0.0  # largest relative mass-balance error over the curve, recomputed
 
     @property
     def sharpness_drops(self) -> float | None:
@@ -656,7 +657,8 @@ def _finish(plan: _Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array |
         warnings=tuple(dict.fromkeys(warnings)), assumptions=tuple(dict.fromkeys(assumptions)),
         speciation_start=spec_start, speciation_end=spec_end, constants_used=tuple(system.uses()), pH_drift=drift,
         masked_by_assumption=tuple(m for m, c in prep.masked_by_assumption.items() if c > 0), indicator_blank_percent=blank,
-        slow_analytes=tuple(plan.slow), analyte_precipitates=tuple(analyte_solids))
+        slow_analytes=tuple(plan.slow), analyte_precipitates=tuple(analyte_solids),
+        mass_balance_error=eq.mass_balance_error())
 
 
 def _dominant_free_form(fractions: Mapping[str, Array], point: int) -> int:

@@ -70,6 +70,7 @@ def test_simulate_text_and_json(capsys, scenarios_dir):
     assert set(doc["equivalence"]) == {"volume_mL", "pM"} and set(doc["curve"]) >= {"volume_mL", "pM"}
     assert len(doc["curve"]["volume_mL"]) == len(doc["curve"]["pM"]["Ca"])
     assert doc["blocked_by"] == ["Fe(III)", "Al"]  # unmasked Fe(III) and Al block EBT (common practice)
+    assert 0.0 <= doc["mass_balance_error"] <= 1.0001e-10  # recomputed from the species over the whole curve
 
 
 @pytest.mark.parametrize("argv,needle", [

@@ -60,6 +60,12 @@ def test_summary_numbers_equal_the_result(written, result):
     assert f"pH {fmt(result.recommended.candidate.pH, 2)}" in html
 
 
+def test_mass_balance_check_is_reported(written, result):
+    html = written[0].read_text(encoding="utf-8")
+    shown = float(re.search(r'<span id="mass-balance">([^<]+)</span>', html).group(1))
+    assert shown == pytest.approx(result.recommended_titration.mass_balance_error, rel=0.06) and shown <= 1.0001e-10
+
+
 def test_scenario_text_is_escaped(written):
     html = written[0].read_text()
     assert "<script>" not in html and "<img src=x" not in html and "<iframe" not in html
