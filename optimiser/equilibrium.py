@@ -383,7 +383,7 @@ def _run_kernel(system: ChemicalSystem, nu: Array, nu_s: Array, K0: Array, dz2: 
     """
     B, n = T.shape
     S, P = nu.shape[0], nu_s.shape[0]
-    active_c = T > 0
+    active_c = np.ascontiguousarray(T > 0)
     if free_pH_col is not None:
         active_c[:, free_pH_col] = True
     ptr, col, val = _csr(nu)
@@ -391,8 +391,9 @@ def _run_kernel(system: ChemicalSystem, nu: Array, nu_s: Array, K0: Array, dz2: 
     x, s, c = np.empty((B, n)), np.empty((B, P)), np.empty((B, S))
     W = np.empty((B, P), dtype=bool)
     I_out, its, res, status = np.empty(B), np.empty(B, dtype=np.int64), np.empty(B), np.empty(B, dtype=np.int64)
-    f64 = np.ascontiguousarray
-    kernel.solve_points(ptr, col, val, nmax, f64(nu_s, dtype=float), system.charge_squared, f64(K0, dtype=float), dz2,
+    def f64(a, dtype=float):  # C-contiguous and writable, so that numba compiles one specialisation only
+        return np.require(a, dtype=dtype, requirements=("C", "W"))
+    kernel.solve_points(ptr, col, val, nmax, f64(nu_s), system.charge_squared, f64(K0), f64(dz2),
                         f64(hco, dtype=float), f64(Ks0, dtype=float).reshape(B, P), f64(dz2_s, dtype=float),
                         f64(hco_s, dtype=float), f64(A, dtype=float), f64(pH_term, dtype=float), bool(activity),
                         f64(T, dtype=float), f64(I, dtype=float), f64(bg, dtype=float), bool(auto_I), I_TOL, active_c,
