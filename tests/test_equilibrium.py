@@ -182,3 +182,19 @@ def test_restart_marks_independent_curves():
                  restart=np.arange(80) == 40)
     second = solve(s, b, pH=10.0, ionic_strength_M=0.1)
     assert both.c[40:] == pytest.approx(second.c, rel=1e-8, abs=1e-30)
+
+
+def test_the_kernel_is_compiled_once_for_every_kind_of_call():
+    """One numba specialisation serves fixed and free pH, fixed and computed I, with and without solids, one point
+    or many (each extra one would cost the first run on a machine another full compile)."""
+    from optimiser import kernel
+    if not hasattr(kernel.solve_points, "signatures"):
+        pytest.skip("numba's JIT is disabled")
+    s = build_system(("Ca", "Mg"), ("EDTA", "NH3"))
+    T = np.tile([0.002, 0.001, 0.0, 0.1, 0.0], (50, 1))
+    T[:, 2] = np.linspace(0, 0.004, 50)
+    solve(s, T[0], pH=10.0)
+    solve(s, T, pH=np.linspace(9, 11, 50), ionic_strength_M=None, background_ionic_strength_M=0.05)
+    solve(s, T, pH=None, ionic_strength_M=0.1, include_solids=False)
+    solve(s, T[:, [0, 1, 2, 3, 4]], pH=10.0, A=0.51, log_Kw_shift=np.full(50, -0.001))
+    assert len(kernel.solve_points.signatures) == 1
