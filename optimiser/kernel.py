@@ -540,9 +540,8 @@ def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, z2, K0, dz2, hco, Ks0, dz2_
                     break
             if kept:
                 break
-        guess = 0 if kept else -1
-        c_ready = guess >= 0  # c is that of the guess kept
-        if guess < 0:
+        c_ready = kept  # c is that of the guess kept
+        if not kept:
             for i in range(n):
                 x[i] = (np.log10(Tb[i]) if Tb[i] > 0 and i != free_col else -7.0) if act[i] else LOG_MIN
             _pcf(nu_ptr, nu_col, nu_val, nmax, Kb, Tb, x, act, PCF_FRESH, c, S_pos, S_neg)
