@@ -31,7 +31,6 @@ from .constants import H, FormationConstant, constant_table, corrected, database
 from .errors import ConvergenceError, InputError
 
 Array = NDArray[np.float64]
-LOG_MIN = kernel.LOG_MIN  # log10 of an absent component's free concentration
 REL_TOL = 1e-10
 I_TOL = 1e-8  # relative change of a computed ionic strength at which its iteration stops: log K then within 1e-8
 
@@ -324,30 +323,23 @@ def solve(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None = None
     # the kernel moves them to each point's ionic strength and folds in a fixed pH
     K0, Ks0 = system.log_K(np.zeros(B), temp, A)
     K0 = K0 + np.maximum(-nu[:, iH], 0.0)[None, :] * shift_w
-    Ks0 = (Ks0 + np.maximum(-nu_s_all[:, iH], 0.0)[None, :] * shift_w)[:, :P_used]
+    Ks0 = Ks0 + np.maximum(-nu_s_all[:, iH], 0.0)[None, :] * shift_w
     dz2, dz2_s = system.charge_terms
     hco = np.zeros(len(nu)) if free_pH else nu[:, iH].copy()
-    hco_s = np.zeros(P_used) if free_pH else nu_s_all[:P_used, iH].copy()
+    hco_s = np.zeros(len(nu_s_all)) if free_pH else nu_s_all[:, iH].copy()
     pH_term = np.zeros(B) if free_pH else -pH_arr
     activity = not free_pH and pH_scale == "activity"
     x, solids_amt, active, c, I, iterations, resid = _run_kernel(
-        system, nu[:, unknown], nu_s_all[:P_used][:, unknown], K0, dz2, hco, Ks0, dz2_s[:P_used], hco_s, A_T, pH_term,
-        activity, T_tot[:, unknown], I, bg, auto_I, chain, unknown.index(iH) if free_pH else None, tol, point_labels)
-    # the constants at the ionic strength reached, for the saturation indices (and the pH when it is free)
+        system, nu[:, unknown], nu_s_all[:P_used][:, unknown], K0, dz2, hco, Ks0[:, :P_used], dz2_s[:P_used],
+        hco_s[:P_used], A_T, pH_term, activity, T_tot[:, unknown], I, bg, auto_I, chain,
+        unknown.index(iH) if free_pH else None, tol, point_labels)
+    # the constants at the ionic strength reached, for the saturation indices of every solid (those not allowed
+    # too) and the pH when it is free
     Af = (A_T * davies_f(I))[:, None]
     log_cH = x[:, unknown.index(iH)] if free_pH else (pH_term + (Af[:, 0] if activity else 0.0))
-    Ks_I = Ks0 + Af * dz2_s[None, :P_used] + hco_s[None, :] * (log_cH[:, None] if not free_pH else 0.0)
     if free_pH:
         pH_arr = -log_cH if pH_scale == "concentration" else -(log_cH - Af[:, 0])
-    si = np.zeros((B, nu_s_all.shape[0]))
-    si[:, :P_used] = x @ nu_s_all[:P_used][:, unknown].T + Ks_I
-    if P_used < nu_s_all.shape[0]:  # solids not allowed: their saturation index all the same
-        log_free = np.zeros((B, C))
-        log_free[:, unknown] = x
-        log_free[:, iH] = log_cH
-        _, Ks_all = system.log_K(I, temp, A)
-        Ks_all = Ks_all + np.maximum(-nu_s_all[:, iH], 0.0)[None, :] * shift_w
-        si[:, P_used:] = (log_free @ nu_s_all.T + Ks_all)[:, P_used:]
+    si = x @ nu_s_all[:, unknown].T + Ks0 + Af * dz2_s[None, :] + hco_s[None, :] * log_cH[:, None]
     amounts = np.zeros((B, nu_s_all.shape[0]))
     amounts[:, :P_used] = solids_amt
     present = np.zeros_like(amounts, dtype=bool)
@@ -391,12 +383,11 @@ def _run_kernel(system: ChemicalSystem, nu: Array, nu_s: Array, K0: Array, dz2: 
     x, s, c = np.empty((B, n)), np.empty((B, P)), np.empty((B, S))
     W = np.empty((B, P), dtype=bool)
     I_out, its, res, status = np.empty(B), np.empty(B, dtype=np.int64), np.empty(B), np.empty(B, dtype=np.int64)
-    def f64(a, dtype=float):  # C-contiguous and writable, so that numba compiles one specialisation only
-        return np.require(a, dtype=dtype, requirements=("C", "W"))
-    kernel.solve_points(ptr, col, val, nmax, f64(nu_s), system.charge_squared, f64(K0), f64(dz2),
-                        f64(hco, dtype=float), f64(Ks0, dtype=float).reshape(B, P), f64(dz2_s, dtype=float),
-                        f64(hco_s, dtype=float), f64(A, dtype=float), f64(pH_term, dtype=float), bool(activity),
-                        f64(T, dtype=float), f64(I, dtype=float), f64(bg, dtype=float), bool(auto_I), I_TOL, active_c,
+    def f64(a):  # float, C-contiguous and writable, so that numba compiles one specialisation only
+        return np.require(a, dtype=float, requirements=("C", "W"))
+    kernel.solve_points(ptr, col, val, nmax, f64(nu_s), system.charge_squared, f64(K0), f64(dz2), f64(hco),
+                        f64(Ks0).reshape(B, P), f64(dz2_s), f64(hco_s), f64(A), f64(pH_term), bool(activity),
+                        f64(T), f64(I), f64(bg), bool(auto_I), I_TOL, active_c,
                         -1 if free_pH_col is None else int(free_pH_col), chain, float(tol), int(max_iter),
                         x, s, W, c, I_out, its, res, status)
     bad = (status != kernel.CONVERGED) | ~np.isfinite(x).all(axis=1)

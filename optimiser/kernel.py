@@ -548,16 +548,16 @@ def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, z2, K0, dz2, hco, Ks0, dz2_
         for i in range(n):
             if not act[i]:
                 x[i] = LOG_MIN
-        # the active set starts empty from a feasible point (solids join through the ratio test), so that a
-        # guess from another point cannot impose a solid that does not belong here
-        W[:] = False
-        s[:] = 0.0
-        if P and _feasible(x, nu_s, Ksb, act):
-            c_ready = False
         status[b] = NOT_CONVERGED
         it = 0
         I_prev, h_prev, slope = I, 0.0, slope_run
         for _pass in range(MAX_PASSES):
+            # the active set starts empty from a feasible point (solids join through the ratio test), so that a
+            # guess from another point, or the constants of the previous ionic strength, impose no solid
+            W[:] = False
+            s[:] = 0.0
+            if P and _feasible(x, nu_s, Ksb, act):
+                c_ready = False
             ok, it_p, worst = _newton(nu_ptr, nu_col, nu_val, nu_s, Kb, Tb, Ksb, act, free_col, tol, max_iter, x, W, s,
                                       c, c_ready, e, R, scale, dx, J, M, rhs, SI, Aw, v, y)
             it += it_p
@@ -587,10 +587,6 @@ def solve_points(nu_ptr, nu_col, nu_val, nmax, nu_s, z2, K0, dz2, hco, Ks0, dz2_
             I = I_next if 0.0 < I_next < 1e3 else I_new
             _at_ionic_strength(K0[b], dz2, hco, Ks0[b], dz2_s, hco_s, A[b], pH_term[b], activity, I, Kb, Ksb)
             c_ready = False
-            W[:] = False  # the solids join again from a feasible point at the new constants
-            s[:] = 0.0
-            if P:
-                _feasible(x, nu_s, Ksb, act)
         I_out[b] = I
         for i in range(n):
             x_out[b, i] = x[i]
