@@ -89,6 +89,9 @@ class Indicator:
     def free_colour(self, protons: int) -> str:
         return self.forms.get(protons, self.forms.get(str(protons), "?"))
 
+    def complex_colour(self, metal: str) -> str:
+        return self.metal_colour.split(" (")[0]
+
 
 @dataclass(frozen=True)
 class Catalogue:

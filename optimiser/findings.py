@@ -1,0 +1,103 @@
+"""What a simulation finds, as structured facts, and the one place where they are put into words.
+
+The simulation, the strategies and the read-out record a :class:`Finding` (a kind, the metal or reagent it is
+about, and the numbers behind it); nothing in them writes sentences. :func:`words` turns a finding into the
+sentence that the command line, the JSON and the report print, so the wording lives here only.
+"""
+from __future__ import annotations
+
+from collections.abc import Callable, Iterable, Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+WARNING = "warning"
+ASSUMPTION = "assumption"
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One fact about a simulated titration.
+
+    Attributes
+    ----------
+    kind : str
+        Key of :data:`WORDING` (what sort of fact this is).
+    role : str
+        ``"warning"`` (something the analyst must act on) or ``"assumption"`` (a stated model assumption).
+    values : Mapping[str, Any]
+        The names and numbers the fact is about (metal, reagent, fraction, pH, ...).
+    source : str
+        Where the rule behind it comes from (a reference key, or "common practice").
+    """
+
+    kind: str
+    role: str = WARNING
+    values: Mapping[str, Any] = field(default_factory=dict)
+    source: str = "common practice"
+
+    def __post_init__(self) -> None:
+        if self.kind not in WORDING:
+            raise KeyError(f"no wording for finding kind {self.kind!r}")
+        if self.role not in (WARNING, ASSUMPTION):
+            raise ValueError(f"role must be {WARNING!r} or {ASSUMPTION!r}; got {self.role!r}")
+
+    @property
+    def text(self) -> str:
+        return WORDING[self.kind](self.values)
+
+
+def warning(kind: str, source: str = "common practice", **values: Any) -> Finding:
+    return Finding(kind, WARNING, values, source)
+
+
+def assumption(kind: str, source: str = "common practice", **values: Any) -> Finding:
+    return Finding(kind, ASSUMPTION, values, source)
+
+
+def words(findings: Iterable[Finding], role: str) -> tuple[str, ...]:
+    """The sentences of the findings with ``role``, in order, each once."""
+    return tuple(dict.fromkeys(f.text for f in findings if f.role == role))
+
+
+def _join(names: Iterable[str]) -> str:
+    return ", ".join(names)
+
+
+# One sentence per kind. `v` holds the finding's values.
+WORDING: dict[str, Callable[[Mapping[str, Any]], str]] = {
+    # pretreatment (reagents that reduce or mask by a stated assumption)
+    "reduction": lambda v: f"{v['agent']}: {v['note']}.",
+    "reduction_incomplete": lambda v: (f"{v['agent']} dose is too small to reduce all {v['metal']} "
+                                       f"({100 * v['fraction']:.0f} % reduced)."),
+    "masked_by_assumption": lambda v: f"{v['agent']}: {v['note']}.",
+    "masking_dose_low": lambda v: (f"{v['agent']}: the dose is below {v['min_ratio']} times the {v['metal']} present; "
+                                   f"{v['metal']} is not taken as masked."),
+    "masking_below_pH": lambda v: f"{v['agent']} is not used below pH {v['min_pH']} (the method's pH is {v['pH']:.2f}).",
+    # strategies
+    "back_excess": lambda v: (f"Back-titration: {v['excess_ratio']:g} times the titrant needed for the metals present "
+                              f"({v['excess_mL']:.2f} mL) is added first, then titrated with {v['standard_conc_M']:g} M "
+                              f"{v['standard']}."),
+    "slow_heated": lambda v: (f"{_join(v['metals'])} reacts with the titrant only on heating (boil a few minutes after the "
+                              f"excess is added); its complex is then inert and is not displaced by {v['standard']} during "
+                              "the back-titration."),
+    "slow_direct": lambda v: (f"{_join(v['metals'])} reacts too slowly with {v['titrant']} at room temperature for a direct "
+                              "titration: use a back-titration (common practice)."),
+    # read-out
+    "indicator_unbound": lambda v: (f"{v['indicator']} is hardly bound by the metals at pH {v['pH']:.2f} "
+                                    f"({100 * v['bound']:.0f} % bound): no visible colour change is predicted."),
+    "analyte_precipitates": lambda v: (f"The analyte {v['metal']} precipitates as {v['solid']}: the titration would be slow "
+                                       "and low (add the titrant before the pH is raised, or change the pH)."),
+    "solid_carries_down": lambda v: (f"{v['solid']} precipitates: it can adsorb or carry down {_join(v['analyte'])} and the "
+                                     "indicator (a negative error that grows with the precipitate); add most of the titrant "
+                                     "before the pH is raised (Flaschka and Ganchoff)."),
+    "blocked": lambda v: f"{_join(v['metals'])} block(s) {v['indicator']} at this pH and dose: mask it, or change the method.",
+    "indicator_pH": lambda v: (f"{v['indicator']} shows its colour change only between pH {v['low']:g} and {v['high']:g} "
+                               f"(the method's pH is {v['pH']:.2f})."),
+    "needs_magnesium": lambda v: (f"{v['indicator']} gives a sharp calcium end point only with magnesium present: add a "
+                                  "little Mg-EDTA to the buffer (it does not change the result)."),
+    "indicator_blank": lambda v: (f"{-v['blank_percent']:.2g} % of the analyte is still held by the indicator at the end "
+                                  "point (an indicator blank, included in the predicted error): standardise the titrant "
+                                  "against the same metal with the same indicator dose, or use less indicator."),
+    "too_gradual": lambda v: (f"The colour change takes {v['sharpness_mL']:.2f} mL ({v['drops']:.0f} drops): too gradual to "
+                              "see sharply."),
+}

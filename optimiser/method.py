@@ -1,0 +1,169 @@
+"""What is titrated and how: the :class:`Sample` (the aliquot) and the :class:`Method` (the conditions).
+
+Both are frozen and validate themselves. A ``Method`` resolves its reagent ids once, on creation, to the
+catalogue's entries (``method.titrant_info``, ``method.buffer_info``, ``method.indicator_info``,
+``method.masking_agents``) and its titration mode to a strategy object (``method.strategy``), so that the
+simulation, the search and the report never look a name up again or test a mode by its name.
+"""
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+from .conditional import check_concentration, check_pH
+from .constants import database
+from .errors import InputError
+from .reagents import Buffer, Indicator, MaskingAgent, Titrant, catalogue
+
+
+@dataclass(frozen=True)
+class Sample:
+    """The aliquot as titrated.
+
+    Attributes
+    ----------
+    volume_mL : float
+        Aliquot volume [mL].
+    metals : Mapping[str, float]
+        Metal id -> concentration in the aliquot [mol/L].
+    analyte : tuple of str
+        The metal or metals determined (summed, e.g. ("Ca", "Mg") for total hardness).
+    ionic_strength_M : float
+        [mol/L].
+    temperature_C : float
+        [degC].
+    """
+
+    volume_mL: float
+    metals: Mapping[str, float]
+    analyte: tuple[str, ...]
+    ionic_strength_M: float = 0.1
+    temperature_C: float = 25.0
+
+    def __post_init__(self) -> None:
+        db = database()
+        if not (self.volume_mL > 0):
+            raise InputError(f"sample volume must be positive (mL); got {self.volume_mL}")
+        metals = {db.metal(m): float(check_concentration(c, f"concentration of {m}")) for m, c in self.metals.items()}
+        object.__setattr__(self, "metals", metals)
+        analyte = tuple(db.metal(a) for a in self.analyte)
+        if not analyte:
+            raise InputError("the sample needs an analyte")
+        for a in analyte:
+            if a not in metals:
+                raise InputError(f"analyte {a} has no concentration in the sample (metals given: {', '.join(metals)})")
+        object.__setattr__(self, "analyte", analyte)
+
+    @property
+    def interferents(self) -> tuple[str, ...]:
+        return tuple(m for m in self.metals if m not in self.analyte)
+
+    @property
+    def n_analyte_mmol(self) -> float:
+        return sum(self.metals[a] for a in self.analyte) * self.volume_mL
+
+
+@dataclass(frozen=True)
+class Method:
+    """The conditions of one titration method.
+
+    Attributes
+    ----------
+    pH : float
+    buffer : str
+        Buffer id (see ``optimiser constants``).
+    buffer_total_M : float
+        Total of the buffer's ligand in the aliquot (NH3 + NH4+, ...) [mol/L]; ignored for a buffer without ligand.
+    titrant, titrant_conc_M
+        Titrant id and concentration [mol/L].
+    masking : tuple of (agent, conc_M)
+        Masking agents and their concentrations in the aliquot [mol/L].
+    indicator : str
+    indicator_conc_M : float or None
+        Effective concentration in the aliquot [mol/L]; the indicator's usual dose by default.
+    mode : str
+        The strategy's id (:mod:`optimiser.strategies`): ``"direct"``, or ``"back"`` (excess titrant, then a
+        standard of ``back_metal``).
+    back_metal, back_conc_M, excess_ratio
+        Back-titration standard, its concentration [mol/L], and the excess of titrant over the metals present
+        (read by the strategies that use them).
+    """
+
+    pH: float
+    buffer: str
+    titrant: str
+    titrant_conc_M: float
+    indicator: str
+    buffer_total_M: float = 0.1
+    masking: tuple[tuple[str, float], ...] = ()
+    indicator_conc_M: float | None = None
+    mode: str = "direct"
+    back_metal: str = "Zn"
+    back_conc_M: float | None = None
+    excess_ratio: float = 1.5
+    titrant_info: Titrant = field(init=False, compare=False, repr=False)
+    buffer_info: Buffer = field(init=False, compare=False, repr=False)
+    indicator_info: Indicator = field(init=False, compare=False, repr=False)
+    masking_agents: tuple[MaskingAgent, ...] = field(init=False, compare=False, repr=False)
+
+    def __post_init__(self) -> None:
+        from .strategies import strategy  # the strategies read Method; imported here to keep the import graph one-way
+
+        cat = catalogue()
+        check_pH(self.pH)
+        object.__setattr__(self, "buffer_info", cat.buffer(self.buffer))
+        object.__setattr__(self, "titrant_info", cat.titrant(self.titrant))
+        object.__setattr__(self, "indicator_info", cat.indicator(self.indicator))
+        object.__setattr__(self, "buffer", self.buffer_info.id)
+        object.__setattr__(self, "titrant", self.titrant_info.id)
+        object.__setattr__(self, "indicator", self.indicator_info.id)
+        agents = tuple(cat.masking_agent(a) for a, _ in self.masking)
+        masking = tuple((agent.id, float(check_concentration(c, f"dose of {a}"))) for agent, (a, c) in zip(agents, self.masking))
+        if len({a for a, _ in masking}) != len(masking):
+            raise InputError("each masking agent may be given once")
+        object.__setattr__(self, "masking", masking)
+        object.__setattr__(self, "masking_agents", agents)
+        if not self.titrant_conc_M > 0:
+            raise InputError(f"titrant concentration must be positive; got {self.titrant_conc_M}")
+        check_concentration(self.buffer_total_M, "buffer total")
+        strategy(self.mode).check(self)
+
+    @property
+    def strategy(self):
+        """The :class:`optimiser.strategies.Strategy` that runs this method."""
+        from .strategies import strategy
+        return strategy(self.mode)
+
+    @property
+    def back_concentration(self) -> float:
+        return self.back_conc_M if self.back_conc_M is not None else self.titrant_conc_M
+
+    @property
+    def indicator_dose_M(self) -> float:
+        """Effective indicator concentration in the aliquot [mol/L]."""
+        return self.indicator_conc_M if self.indicator_conc_M is not None else self.indicator_info.conc_M
+
+    @property
+    def ligands(self) -> tuple[str, ...]:
+        out = [self.titrant]
+        if self.buffer_info.ligand:
+            out.append(self.buffer_info.ligand)
+        out += [agent.ligand for agent in self.masking_agents]
+        out.append(self.indicator)
+        return tuple(dict.fromkeys(out))
+
+    def ligand_totals(self) -> dict[str, float]:
+        """Total concentration of each ligand the method adds (buffer ligand and masking agents) [mol/L]."""
+        out: dict[str, float] = {}
+        if self.buffer_info.ligand:
+            out[self.buffer_info.ligand] = self.buffer_total_M
+        for agent, (_, dose) in zip(self.masking_agents, self.masking):
+            out[agent.ligand] = out.get(agent.ligand, 0.0) + dose
+        return out
+
+    @property
+    def hazard(self) -> int:
+        """The highest hazard class of the method's reagents (0-4)."""
+        levels = [self.titrant_info.hazard, self.buffer_info.hazard, self.indicator_info.hazard]
+        levels += [agent.hazard for agent in self.masking_agents]
+        return max(levels)

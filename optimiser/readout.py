@@ -1,0 +1,177 @@
+"""What an analyst reads from a solved curve: end point, sharpness, speciation, indicator forms, blocking,
+co-titration, the indicator blank and the solids.
+
+Each function takes solved equilibria and returns numbers or :class:`~optimiser.findings.Finding` facts;
+none of them writes a sentence (see :mod:`optimiser.findings`).
+"""
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+
+import numpy as np
+from numpy.typing import NDArray
+
+from . import findings as fd
+from .constants import H
+from .equilibrium import Equilibrium
+from .findings import Finding
+from .method import Method, Sample
+from .pretreatment import Prepared
+
+Array = NDArray[np.float64]
+DROP_mL = 0.05  # one drop from a burette (common practice)
+GRADUAL_DROPS = 8.0  # an end point that takes more than 8 drops to turn is too gradual to see (common practice)
+MASKED_THRESHOLD = 0.99  # a blocking metal counts as masked when 99 % of it is held away from the indicator
+UNBOUND_INDICATOR = 0.2  # below this bound fraction at the start, the indicator shows no colour change (our own)
+CATEGORIES = ("free", "bound to titrant", "bound to indicator", "masked", "bound to buffer ligand", "hydroxo complexes",
+              "solid")
+
+
+def interp_crossing(x: Array, y: Array, level: float, start: int = 0) -> float | None:
+    """First x at which y rises through ``level`` (linear interpolation), searching from index ``start``."""
+    above = np.nonzero(y[start:] >= level)[0]
+    if not len(above):
+        return None
+    i = start + int(above[0])
+    if i == 0:
+        return float(x[0])
+    x0, x1, y0, y1 = x[i - 1], x[i], y[i - 1], y[i]
+    return float(x0 + (level - y0) * (x1 - x0) / (y1 - y0)) if y1 != y0 else float(x1)
+
+
+def _category(ligands: Sequence[str], is_free: bool, method: Method, mask_ligands: set[str]) -> str | None:
+    if not ligands:
+        return "free" if is_free else "hydroxo complexes"
+    if method.titrant in ligands:
+        return "bound to titrant"
+    if method.indicator in ligands:
+        return "bound to indicator"
+    if mask_ligands & set(ligands):
+        return "masked"
+    if method.buffer_info.ligand in ligands:
+        return "bound to buffer ligand"
+    return None
+
+
+def speciation(eq: Equilibrium, point: int, prep: Prepared, method: Method, metals: Sequence[str]) -> dict[str, dict[str, float]]:
+    """Where each metal is at one point, as shares of its total: free, titrant, indicator, masking, buffer, hydroxo,
+    solid (:data:`CATEGORIES`)."""
+    s = eq.system
+    mask_ligs = {agent.ligand for agent in method.masking_agents}
+    out: dict[str, dict[str, float]] = {}
+    for m in metals:
+        i = s.index(m)
+        tot = eq.totals[point, i] + 0.0
+        parts = dict.fromkeys(CATEGORIES, 0.0)
+        for sp, row, conc in zip(s.species, s.nu, eq.c[point]):
+            if row[i] <= 0:
+                continue
+            ligs = [c for c, v in zip(s.components, row) if v > 0 and c != m and c != H]
+            cat = _category(ligs, sp == m, method, mask_ligs)
+            if cat is not None:
+                parts[cat] += row[i] * conc
+        parts["solid"] = float(eq.solid_amount[point] @ s.nu_solid[:, i]) if s.solids else 0.0
+        total_all = tot + prep.masked_by_assumption.get(m, 0.0)
+        if total_all <= 0:
+            continue
+        parts["masked"] += prep.masked_by_assumption.get(m, 0.0)
+        out[m] = {k: v / total_all for k, v in parts.items()}
+    for m, c in prep.masked_by_assumption.items():
+        if m not in out and c > 0:
+            out[m] = {**dict.fromkeys(CATEGORIES, 0.0), "masked": 1.0}
+    return out
+
+
+def indicator_forms(eq: Equilibrium, method: Method, metals: Sequence[str]) -> tuple[dict[str, Array], dict[str, str]]:
+    """The indicator's forms along the curve: fractions of its total, and the colour of each form.
+
+    Keys are ``"<metal>-<indicator>"`` for metal complexes and ``"In"``, ``"HIn"``, ``"H2In"``, ... for the free dye.
+    """
+    system, indicator = eq.system, method.indicator_info
+    comps = system.components
+    iI = comps.index(method.indicator)
+    fr: dict[str, Array] = {}
+    colours: dict[str, str] = {}
+    tot_ind = np.maximum(eq.totals[:, iI], 1e-300)
+    for k, row in enumerate(system.nu):
+        if row[iI] <= 0:
+            continue
+        metal_in = [c for c, v in zip(comps, row) if v > 0 and c in metals]
+        if metal_in:
+            key = f"{metal_in[0]}-{indicator.id}"
+            colours[key] = indicator.complex_colour(metal_in[0])
+        else:
+            h = int(row[comps.index(H)])
+            key = f"H{h if h > 1 else ''}In" if h > 0 else "In"
+            colours[key] = indicator.free_colour(h)
+        fr[key] = fr.get(key, 0.0) + row[iI] * eq.c[:, k] / tot_ind
+    return fr, colours
+
+
+def dominant_free_form(fractions: Mapping[str, Array], point: int) -> int:
+    """Protons on the free dye's most abundant form at ``point``."""
+    free = {k: v[point] for k, v in fractions.items() if "-" not in k}
+    if not free:
+        return 0
+    key = max(free, key=free.get)
+    return 0 if key == "In" else int(key[1:-2] or 1)
+
+
+def cotitrated(eqp: Equilibrium, point: int, sample: Sample, method: Method) -> dict[str, float]:
+    """Share of each interferent bound to the titrant at ``point`` (the end point)."""
+    comps = eqp.system.components
+    out = {}
+    for m in sample.interferents:
+        if m in comps:
+            tot = eqp.totals[point, comps.index(m)]
+            out[m] = float(eqp.bound(m, method.titrant)[point] / tot) if tot > 0 else 0.0
+        else:
+            out[m] = 0.0
+    return out
+
+
+def indicator_blank(eqp: Equilibrium, point: int, sample: Sample, method: Method) -> float | None:
+    """Analyte still held by the indicator at ``point``, as a negative share of the analyte [%].
+
+    An indicator blank: it cancels when the titrant is standardised against the same metal with the same
+    indicator dose.
+    """
+    comps = eqp.system.components
+    held = sum(float(eqp.bound(method.indicator, a)[point]) for a in sample.analyte if a in comps)
+    total = sum(float(eqp.totals[point, comps.index(a)]) for a in sample.analyte if a in comps)
+    return -100.0 * held / total if total > 0 else None
+
+
+def solid_findings(system, solids: Sequence[str], sample: Sample) -> tuple[list[str], list[Finding]]:
+    """The analyte's own solids, and a finding for every solid present."""
+    analyte_solids, out = [], []
+    for s_name in solids:
+        m = system.solid_metals[system.solids.index(s_name)]
+        if m in sample.analyte:
+            analyte_solids.append(s_name)
+            out.append(fd.warning("analyte_precipitates", metal=m, solid=s_name))
+        else:
+            out.append(fd.warning("solid_carries_down", solid=s_name, analyte=list(sample.analyte),
+                                  source="Flaschka and Ganchoff"))
+    return analyte_solids, out
+
+
+def blocking(spec_start: Mapping[str, Mapping[str, float]], sample: Sample, method: Method) -> list[str]:
+    """Metals listed as blocking the indicator that are present and not held away from it at the start."""
+    out = []
+    for m in method.indicator_info.blocked_by:
+        sp = spec_start.get(m)
+        if sp is None or m not in sample.metals:
+            continue
+        if method.strategy.held_from_indicator(sp) < MASKED_THRESHOLD:
+            out.append(m)
+    return out
+
+
+def inferred_blocker(eq: Equilibrium, method: Method, metals: Sequence[str]) -> str | None:
+    """The metal that still holds more than half of the indicator at the end of a curve whose indicator never
+    turned."""
+    tot = np.maximum(eq.totals[:, eq.system.index(method.indicator)], 1e-300)
+    holders = {m: float(eq.bound(method.indicator, m)[-1]) for m in metals}
+    worst = max(holders, key=holders.get)
+    return worst if holders[worst] / tot[-1] > 0.5 else None

@@ -1,0 +1,170 @@
+"""The interface every titration strategy implements, and the plan of one simulated curve."""
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from ..findings import Finding
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ..equilibrium import ChemicalSystem, Equilibrium
+    from ..method import Method, Sample
+    from ..pretreatment import Prepared
+
+Array = NDArray[np.float64]
+
+
+@dataclass
+class Plan:
+    """One titration's set-up between the batched solves.
+
+    Attributes
+    ----------
+    system : ChemicalSystem
+    metals : list of str
+        The system's metals (the sample's, after pretreatment, and any the strategy adds).
+    totals_before : callable
+        Titrant volume [mL] -> component totals [mol/L], the titrant added to the aliquot.
+    totals : callable
+        Curve volume [mL] (titrant, or back-titrant) -> component totals [mol/L]; set by the strategy.
+    V_eq : float
+        Titrant volume that holds exactly the analyte [mL].
+    V_eq_ref : float
+        Equivalence volume on the curve's own axis [mL] (set by the strategy).
+    V_x : float or None
+        Titrant added before the curve starts (an excess), [mL].
+    V_hi : float
+        End of the coarse curve [mL].
+    V_all : float
+        Titrant volume that holds every metal that binds it [mL].
+    slow : list of str
+        Analytes that react slowly with the titrant.
+    findings : list of Finding
+    frozen : dict
+        Slow metal -> fraction held inert in its titrant complex.
+    V : array
+        The coarse curve's volumes [mL].
+    """
+
+    sample: Sample
+    method: Method
+    prep: Prepared
+    system: ChemicalSystem
+    metals: list[str]
+    totals_before: Callable[[Array], Array]
+    V_eq: float
+    V_all: float
+    n_points: int
+    slow: list[str]
+    findings: list[Finding] = field(default_factory=list)
+    totals: Callable[[Array], Array] | None = None
+    V_eq_ref: float = 0.0
+    V_x: float | None = None
+    V_hi: float = 0.0
+    frozen: dict[str, float] = field(default_factory=dict)
+    V: Array | None = None
+
+
+def indicator_bound(method: Method, eq: Equilibrium, metals: list[str] | tuple[str, ...]) -> Array:
+    """Fraction of the indicator bound to any of ``metals`` at each point."""
+    ind = method.indicator
+    tot = eq.totals[:, eq.system.index(ind)]
+    return sum(eq.bound(ind, m) for m in metals) / np.maximum(tot, 1e-300)
+
+
+class Strategy:
+    """A way of running a titration (the interface; see :mod:`optimiser.strategies`).
+
+    Attributes
+    ----------
+    id : str
+        The name used in scenarios, on the command line and in the JSON (``mode``).
+    label : str
+        What the report calls it.
+    complexity : float
+        What it adds to the bench complexity objective (a second standard and titre count 1; our own scale,
+        common practice: simpler methods are preferred where they do the job).
+    reads_release : bool
+        True where the end point is the analyte releasing the indicator (a direct titration): the indicator blank,
+        the magnesium needed by calcium indicators, the inference of a blocking metal and the pH drift apply.
+    slow_is_violation : bool
+        True where an analyte that reacts slowly with the titrant makes the method unusable.
+    uses_standard : bool
+        True where the method needs a second standard (``Method.back_metal``).
+    volume_name : str
+        What the curve's volume axis is ("titrant", "back-titrant").
+    """
+
+    id: str = ""
+    label: str = ""
+    complexity: float = 0.0
+    reads_release: bool = True
+    slow_is_violation: bool = False
+    uses_standard: bool = False
+    volume_name: str = "titrant"
+
+    # -- set-up ------------------------------------------------------------------------------------------
+    def check(self, method: Method) -> None:
+        """Raise an InputError if the method's strategy-specific fields are not allowed."""
+
+    def added_metals(self, method: Method) -> tuple[str, ...]:
+        """Metals the strategy brings into the solution (a back-titration standard)."""
+        return ()
+
+    def plan_curve(self, plan: Plan) -> None:
+        """Set ``plan.totals``, ``V_eq_ref``, ``V_x``, ``V_hi`` and add the strategy's findings."""
+        raise NotImplementedError
+
+    # -- reading the indicator ------------------------------------------------------------------------------
+    def reference(self, plan: Plan, eq: Equilibrium) -> float:
+        """The indicator fraction that counts as fully turned (or fully bound) on the coarse curve."""
+        raise NotImplementedError
+
+    def turned(self, plan: Plan, eq: Equilibrium, ref: float) -> Array:
+        """Fraction of the indicator turned at each point (0 before, 1 after the end point)."""
+        raise NotImplementedError
+
+    def error_percent(self, plan: Plan, V_ep: float) -> float:
+        """The titration error [%] of an end point at ``V_ep`` on the curve's axis."""
+        raise NotImplementedError
+
+    def colour_change(self, complex_colour: str, free_colour: str) -> tuple[str, str]:
+        """(colour before, colour after) the end point."""
+        return complex_colour, free_colour
+
+    def complex_metal(self, method: Method, sample: Sample) -> str:
+        """The metal whose indicator complex gives the colour on the complex side of the change."""
+        return sample.analyte[0]
+
+    def free_form_point(self) -> int:
+        """Index of the curve point where the free dye's form is read (its colour at the end point)."""
+        return -1
+
+    def held_from_indicator(self, speciation: dict[str, float]) -> float:
+        """Share of a blocking metal kept away from the indicator at the start."""
+        return speciation["masked"]
+
+    # -- the bench -------------------------------------------------------------------------------------------
+    def titre_mL(self, endpoint_mL: float | None, excess_mL: float | None) -> float:
+        """The largest volume the burette must deliver [mL]."""
+        return endpoint_mL or 0.0
+
+    def variant(self, method: Any) -> str:
+        """The strategy's own choice in a method (the back-titration standard), or ``""``."""
+        return ""
+
+    def describe(self, method: Any) -> str:
+        """A short phrase for summaries ("direct", "back-titration with Zn")."""
+        return self.id
+
+    def volume_label(self, method: Method) -> str:
+        """The curve's volume axis label."""
+        return f"titrant ({method.titrant}) volume / mL"
+
+    def json_fields(self, method: Any) -> dict[str, Any]:
+        """The strategy's keys in the JSON result."""
+        return {"mode": self.id, "back_metal": None}
