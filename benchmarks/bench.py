@@ -16,6 +16,7 @@ import numpy as np
 
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT / "tests"))
+sys.path.insert(0, str(ROOT / "benchmarks"))
 
 
 def best_of(fn, repeat=3):
@@ -163,7 +164,9 @@ def bench_search():
     from optimiser.report import write
     from optimiser.results import dumps, to_json
     from optimiser.scenario import demo, parse
-    from optimiser.search import front_hypervolumes, grid_candidates, grid_search, run_search
+    from grid import front_hypervolumes, grid_candidates, grid_search
+
+    from optimiser.search import run_search
     sc = demo()
     t0 = time.perf_counter()
     r = run_search(sc, seed=1)

@@ -199,7 +199,8 @@ def _my_constants(metal: str, titrant: str) -> tuple[FormationConstant, tuple[Fo
     db = database()
     metal = db.metal(metal)
     if titrant not in db.protonation or not any(k[1] == titrant for k in db.complexes):
-        raise UnknownNameError("titrant", titrant, ["EDTA", "EGTA", "CDTA", "DTPA"])
+        from .reagents import catalogue  # the titrant list is data (reagents.yaml)
+        raise UnknownNameError("titrant", titrant, catalogue().titrants)
     ks = db.complexes.get((metal, titrant), ())
     main = [k for k in ks if H not in k.stoichiometry and k.stoichiometry[titrant] == 1]
     if not main:

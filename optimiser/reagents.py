@@ -38,6 +38,10 @@ class Titrant:
     def molar_mass(self) -> float:
         return molar_mass(self.formula)
 
+    @property
+    def complexity(self) -> float:
+        return 0.0 if self.id == "EDTA" else 0.5
+
 
 @dataclass(frozen=True)
 class Buffer:

@@ -10,6 +10,7 @@ import pytest
 
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(Path(__file__).resolve().parent))  # the phreeqc bridge and the browser helper
+sys.path.insert(0, str(ROOT / "benchmarks"))  # the exhaustive grid the search is checked against
 
 
 @pytest.fixture(scope="session")

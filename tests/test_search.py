@@ -7,7 +7,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from optimiser.scenario import load, parse
-from optimiser.search import front_hypervolumes, grid_search, run_search
+from grid import front_hypervolumes, grid_search
+
+from optimiser.search import run_search
 
 pytestmark = pytest.mark.slow
 

@@ -30,6 +30,7 @@ class BackTitration(Strategy):
     slow_is_violation = False
     uses_standard = True
     volume_name = "back-titrant"
+    family = "back-titration"
 
     def check(self, method) -> None:
         if method.back_metal not in STANDARDS:

@@ -97,6 +97,9 @@ class Strategy:
         True where the method needs a second standard (``Method.back_metal``).
     volume_name : str
         What the curve's volume axis is ("titrant", "back-titrant").
+    family : str or None
+        The kind of selectivity the strategy stands for in the report's alternatives ("back-titration"); None where
+        the reagents and pH decide it (a direct titration: masking, another titrant, pH control).
     """
 
     id: str = ""
@@ -106,6 +109,7 @@ class Strategy:
     slow_is_violation: bool = False
     uses_standard: bool = False
     volume_name: str = "titrant"
+    family: str | None = None
 
     # -- set-up ------------------------------------------------------------------------------------------
     def check(self, method: Method) -> None:

@@ -1,0 +1,119 @@
+"""Candidates evaluated in batches: the quick checks, one batched simulation, objectives and constraints, a cache."""
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+from . import objectives as ob
+from .candidate import Candidate, buffers_for
+from .errors import ConvergenceError, InapplicableMethodError, MissingConstantError
+from .scenario import Scenario
+from .titration import Titration, simulate_many
+
+SEARCH_POINTS = 41  # coarse curve points per candidate during the search (the recommendation is re-run finer)
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """Objectives, constraints and the simulation behind one candidate."""
+
+    candidate: Candidate
+    error_percent: float | None
+    margin: float | None
+    sharpness_mL: float | None
+    hazard: int
+    violations: tuple[str, ...]
+    titration: Titration | None
+    kinds: tuple[str, ...]
+    F: tuple[float, ...]
+    G: tuple[float, ...]
+
+    @property
+    def feasible(self) -> bool:
+        return all(g <= 0 for g in self.G)
+
+
+def _error_kind(exc: Exception) -> str:
+    if isinstance(exc, MissingConstantError):
+        return "missing_constant"
+    if isinstance(exc, InapplicableMethodError):
+        return "inapplicable"
+    return "not_converged"
+
+
+class Evaluator:
+    """Evaluates candidates in batches, with a cache (the search revisits the same discrete choices).
+
+    Attributes
+    ----------
+    n_evaluations : int
+        Candidates asked for, cache hits included.
+    n_simulated : int
+        Candidates passed to the simulation (cache hits and pre-screened candidates excluded).
+    n_prescreened : int
+        Candidates rejected by the quick checks, without a simulation.
+    """
+
+    def __init__(self, scenario: Scenario, n_points: int = SEARCH_POINTS):
+        self.scenario = scenario
+        self.n_points = n_points
+        self.cache: dict[tuple, Evaluation] = {}
+        self.n_evaluations = 0
+        self.n_simulated = 0
+        self.n_prescreened = 0
+
+    def evaluate(self, candidates: Sequence[Candidate]) -> list[Evaluation]:
+        self.n_evaluations += len(candidates)
+        todo = [c for c in dict.fromkeys(candidates) if c.key() not in self.cache]
+        screened, to_sim = {}, []
+        for c in todo:
+            pre = ob.prescreen(self.scenario, c, buffers_for)
+            if pre:
+                screened[c] = pre
+            else:
+                to_sim.append(c)
+        sims, errors = self._simulate(to_sim)
+        self.n_simulated += len(to_sim)
+        self.n_prescreened += len(screened)
+        failed = {k: (_error_kind(e), str(e)) for k, e in errors}
+        for k, (c, t) in enumerate(zip(to_sim, sims)):
+            self.cache[c.key()] = self._score(c, t, [failed[k]] if k in failed else [])
+        for c, v in screened.items():
+            self.cache[c.key()] = self._score(c, None, v)
+        return [self.cache[c.key()] for c in candidates]
+
+    def _simulate(self, to_sim: Sequence[Candidate]) -> tuple[list[Titration | None], list]:
+        errors: list = []
+        methods = [c.method(self.scenario) for c in to_sim]
+        if not methods:
+            return [], errors
+        try:
+            return simulate_many(self.scenario.sample, methods, n_points=self.n_points, errors=errors), errors
+        except ConvergenceError:
+            # rare: retry one by one so that only the offending candidate is lost
+            sims, errors = [], []
+            for k, m in enumerate(methods):
+                local: list = []
+                try:
+                    sims.append(simulate_many(self.scenario.sample, [m], n_points=self.n_points, errors=local)[0])
+                except ConvergenceError as exc:
+                    sims.append(None)
+                    local = [(0, exc)]
+                errors += [(k, e) for _, e in local]
+            return sims, errors
+
+    def _score(self, c: Candidate, t: Titration | None, violations: list[tuple[str, str]]) -> Evaluation:
+        sc = self.scenario
+        v = list(violations)
+        err = sharp = None
+        if t is not None:
+            err, sharp = t.error_percent, t.sharpness_mL
+            v += ob.titration_violations(sc, c, t)
+        margin = ob.selectivity_margin(sc, c, t) if t is not None else None
+        facts = ob.Facts(candidate=c, titration=t, error_percent=err, margin=margin, sharpness_mL=sharp,
+                         hazard=ob.hazard_of(c))
+        kinds = tuple(dict.fromkeys(kind for kind, _ in v))
+        return Evaluation(candidate=c, error_percent=err, margin=margin, sharpness_mL=sharp, hazard=facts.hazard,
+                          violations=tuple(dict.fromkeys(text for _, text in v)), titration=t,
+                          F=tuple(ob.OBJECTIVES[k].value(facts) for k in sc.objectives),
+                          G=ob.constraint_values(kinds), kinds=kinds)

@@ -1,0 +1,199 @@
+"""What the search minimises and what it requires: a registry of objectives and of constraints.
+
+An :class:`Objective` has a name (the key in the scenario's ``targets.weights``), a unit, a label, a direction and
+a function of the evaluated facts. A violation has a kind, the constraint group it counts against (one pymoo
+inequality per group) and a short text for summaries. Adding an objective: one :class:`Objective` in
+:data:`OBJECTIVES` (and its name in the scenario's allowed weights).
+"""
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from .conditional import Conditions, conditional_constant, feasibility
+from .errors import MissingConstantError
+from .reagents import HAZARD_NAMES, catalogue
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .candidate import Candidate
+    from .scenario import Scenario
+    from .titration import Titration
+
+ERROR_CAP = 100.0  # % assigned where no end point is seen
+SHARPNESS_CAP = 10.0  # mL
+MARGIN_CAP = 12.0  # log units (no interferent left, or far beyond any practical need)
+
+
+@dataclass(frozen=True)
+class Facts:
+    """What one candidate's evaluation established (the input of every objective)."""
+
+    candidate: Candidate
+    titration: Titration | None
+    error_percent: float | None
+    margin: float | None
+    sharpness_mL: float | None
+    hazard: int
+
+
+@dataclass(frozen=True)
+class Objective:
+    """One objective of the search (minimised as ``value``; ``direction`` says how a reader should read it)."""
+
+    name: str
+    unit: str
+    label: str
+    direction: str
+    value: Callable[[Facts], float]
+
+
+def complexity_of(c: Candidate) -> float:
+    """Bench complexity: one per masking agent, plus what the strategy adds (a back-titration's second standard and
+    titre: 1) and what the titrant adds (its data: fewer published methods and less certain constants than EDTA).
+    Our own scale (common practice: simpler methods are preferred where they do the job)."""
+    return len(c.masking) + c.strategy.complexity + catalogue().titrant(c.titrant).complexity
+
+
+def hazard_of(c: Candidate) -> int:
+    """The highest hazard class (0-4) of the candidate's reagents."""
+    cat = catalogue()
+    levels = [cat.titrant(c.titrant).hazard, cat.buffer(c.buffer).hazard, cat.indicator(c.indicator).hazard]
+    levels += [cat.masking_agent(a).hazard for a, _ in c.masking]
+    return max(levels)
+
+
+def _selectivity(f: Facts) -> float:
+    if f.margin is not None:
+        return -min(f.margin, MARGIN_CAP)
+    return -MARGIN_CAP if f.titration is not None else 0.0
+
+
+OBJECTIVES: dict[str, Objective] = {o.name: o for o in (
+    Objective("error", "%", "|titration error|", "smaller is better",
+              lambda f: min(abs(f.error_percent), ERROR_CAP) if f.error_percent is not None else ERROR_CAP),
+    Objective("selectivity", "log units", "-selectivity margin", "larger margin is better", _selectivity),
+    Objective("sharpness", "mL", "end-point sharpness (10-90 % turned)", "smaller is better",
+              lambda f: min(f.sharpness_mL, SHARPNESS_CAP) if f.sharpness_mL is not None else SHARPNESS_CAP),
+    Objective("hazard", "class 0-4", "reagent hazard", "smaller is better", lambda f: float(f.hazard)),
+    Objective("complexity", "steps", "bench complexity", "smaller is better", lambda f: complexity_of(f.candidate)),
+)}
+
+# kind of violation -> (constraint group it counts against, short text for summaries)
+VIOLATIONS = {
+    "indicator_pH": ("readable", "the indicator shows no colour change at that pH"),
+    "buffer": ("readable", "no allowed buffer holds the pH"),
+    "masking_pH": ("readable", "a masking agent below its working pH"),
+    "hazard": ("readable", "a reagent above the hazard limit"),
+    "no_end_point": ("readable", "no end point (the indicator does not turn)"),
+    "blocked": ("readable", "the indicator is blocked"),
+    "missing_constant": ("readable", "a constant is missing"),
+    "inapplicable": ("readable", "the method masks the analyte itself"),
+    "not_converged": ("readable", "the equilibrium did not converge"),
+    "analyte_solid": ("chemistry", "the analyte precipitates"),
+    "slow": ("chemistry", "the analyte reacts too slowly"),
+    "error_far": ("chemistry", "an error far beyond the target"),
+    "burette": ("volume", "the titre exceeds the burette"),
+}
+CONSTRAINTS = ("readable", "chemistry", "volume")
+
+
+def prescreen(scenario: Scenario, c: Candidate, buffers_for) -> list[tuple[str, str]]:
+    """Violations (kind, text) that need no equilibrium (the simulation is skipped)."""
+    cat = catalogue()
+    out = []
+    ind = cat.indicator(c.indicator)
+    if not (ind.usable_pH[0] <= c.pH <= ind.usable_pH[1]):
+        out.append(("indicator_pH", f"{ind.name} shows no colour change at pH {c.pH:.2f}"))
+    if c.buffer not in buffers_for(c.pH, scenario.search.buffers):
+        out.append(("buffer", f"no allowed buffer holds pH {c.pH:.2f}"))
+    for a, _ in c.masking:
+        agent = cat.masking_agent(a)
+        if c.pH < agent.min_pH:
+            out.append(("masking_pH", f"{agent.name} is not used below pH {agent.min_pH:g}"))
+    if hazard_of(c) > scenario.search.max_hazard:
+        out.append(("hazard", f"hazard {HAZARD_NAMES[hazard_of(c)]} is above the scenario's limit"))
+    return out
+
+
+def titration_violations(scenario: Scenario, c: Candidate, t: Titration) -> list[tuple[str, str]]:
+    """Violations (kind, text) read from a simulated titration."""
+    v = []
+    err = t.error_percent
+    if t.endpoint_mL is None:
+        v.append(("no_end_point", "no end point: the indicator does not turn"))
+    if t.blocked_by:
+        v.append(("blocked", f"indicator blocked by {', '.join(t.blocked_by)}"))
+    if not t.indicator_usable:
+        v.append(("indicator_pH", "indicator shows no colour change at this pH"))
+    if t.analyte_precipitates:
+        v.append(("analyte_solid", f"the analyte precipitates ({', '.join(t.analyte_precipitates)})"))
+    if c.strategy.slow_is_violation and t.slow_analytes:
+        v.append(("slow", "the analyte reacts too slowly for a direct titration"))
+    if err is not None and abs(err) > 10 * scenario.targets.max_error_percent:
+        v.append(("error_far", f"error {err:+.1f} % is more than ten times the target"))
+    if t.titre_mL > scenario.burette_mL:
+        v.append(("burette", f"titre {t.titre_mL:.1f} mL exceeds the {scenario.burette_mL:g} mL burette"))
+    return v
+
+
+def constraint_values(kinds) -> tuple[float, ...]:
+    """One pymoo inequality per constraint group: +1 where any violation counts against it, else -1."""
+    groups = {VIOLATIONS[kind][0] for kind in kinds}
+    return tuple(1.0 if g in groups else -1.0 for g in CONSTRAINTS)
+
+
+def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) -> float | None:
+    """delta log(cK') of the analyte over the strongest interferent still in solution, after masking.
+
+    The analyte's term is the weakest member of an analyte group (all of it must titrate). Concentrations are the
+    sample's, undiluted (the same definition as the analyte's feasibility in the report). Interferent
+    concentrations are what is left dissolved and unmasked at the start of the titration (precipitated, reduced
+    and assumption-masked parts removed); the conditional constants include the buffer's and masking agents'
+    ligands. None when no interferent is left.
+    """
+    s = scenario.sample
+    cond = Conditions(s.ionic_strength_M, s.temperature_C)
+    ligands = c.ligand_totals()
+
+    def log_cK(metal: str, conc: float) -> float:
+        if conc <= 0:
+            return -math.inf
+        k = conditional_constant(metal, c.titrant, c.pH, ligands, cond).log_K_conditional
+        return float(feasibility(k, conc))
+
+    try:
+        analyte = min(log_cK(m, s.metals[m]) for m in s.analyte)
+        worst = -math.inf
+        for m in s.interferents:
+            conc = s.metals[m]
+            if t is not None:
+                sp = t.speciation_start.get(m)
+                if sp is not None:
+                    conc *= max(0.0, 1.0 - sp["solid"] - sp["masked"])
+                else:
+                    conc = 0.0  # reduced or masked away entirely
+            worst = max(worst, log_cK(m, conc) if conc > 1e-12 else -math.inf)
+    except MissingConstantError:
+        return None
+    return None if worst == -math.inf else analyte - worst
+
+
+def conditional_curves(scenario: Scenario, c: Candidate | None, pH: np.ndarray) -> dict[str, np.ndarray]:
+    """log K' of every metal with the method's titrant across pH (with its buffer and masking ligands), and without
+    the ligands. Without a method, the scenario's first titrant and no ligands."""
+    s = scenario.sample
+    cond = Conditions(s.ionic_strength_M, s.temperature_C)
+    titrant = c.titrant if c else scenario.search.titrants[0]
+    ligands = c.ligand_totals() if c is not None else {}
+    out = {"pH": pH}
+    for m in s.metals:
+        for lig_set, suffix in ((ligands, ""), ({}, " (no ligands)")):
+            try:
+                out[m + suffix] = conditional_constant(m, titrant, pH, lig_set, cond).log_K_conditional
+            except MissingConstantError:
+                out[m + suffix] = np.full_like(pH, np.nan)
+    return out

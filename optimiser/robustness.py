@@ -1,0 +1,84 @@
+"""How far a method can drift: the pH window and each masking dose's window where the error stays within target."""
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import replace
+
+import numpy as np
+
+from .evaluation import Evaluation
+from .method import Method
+from .reagents import catalogue
+from .scenario import Scenario
+from .titration import simulate_many
+
+SCAN_POINTS = 81  # coarse curve points per scanned method
+
+
+def robustness(scenario: Scenario, e: Evaluation, half_width: float = 1.0, step: float = 0.05):
+    """Scan pH (and each masking dose) around a method; the windows where |error| stays within the target.
+
+    Parameters
+    ----------
+    half_width : float
+        pH units scanned on each side (within the buffer's working range, where it holds the pH).
+    step : float
+        pH step of the scan.
+
+    Returns
+    -------
+    pH_window, dose_windows, pH_scan, dose_scans
+        (low, high) or None; agent -> (low, high) [mol/L]; (pH grid, errors); agent -> (doses [mol/L], errors).
+    """
+    c = e.candidate
+    target = scenario.targets.max_error_percent
+    lo, hi = catalogue().buffer(c.buffer).pH_range  # beyond its working range the buffer does not hold the pH
+    grid = np.round(np.arange(c.pH - half_width, c.pH + half_width + 1e-9, step), 4)
+    grid = grid[(grid >= max(0.0, lo)) & (grid <= min(14.0, hi))]
+    grid = np.union1d(grid, [c.pH])
+    methods = [replace(c.method(scenario), pH=float(p)) for p in grid]
+    errs = _errors(scenario, methods)
+    pH_window = window(grid, errs, c.pH, target)
+    doses = {}
+    dose_scans = {}
+    for a, d in c.masking:
+        lo, hi = (math.log10(x) for x in catalogue().masking_agent(a).dose_range_M)
+        lg = np.log10(d) + np.arange(-1.0, 1.0001, 0.1)
+        lg = np.union1d(lg[(lg >= lo - 1e-9) & (lg <= hi + 1e-9)], [np.log10(d)])
+        ms = []
+        for x in lg:
+            mask = tuple((b, 10 ** x if b == a else dd) for b, dd in c.masking)
+            ms.append(replace(c.method(scenario), masking=mask))
+        de = _errors(scenario, ms)
+        dose_scans[a] = (10 ** lg, de)
+        w = window(lg, de, np.log10(d), target)
+        if w is not None:
+            doses[a] = (float(10 ** w[0]), float(10 ** w[1]))
+    return pH_window, doses, (grid, errs), dose_scans
+
+
+def _errors(scenario: Scenario, methods: Sequence[Method]) -> np.ndarray:
+    errors: list = []
+    sims = simulate_many(scenario.sample, methods, n_points=SCAN_POINTS, errors=errors)
+    out = []
+    for t in sims:
+        if t is None or t.error_percent is None or t.blocked_by or not t.indicator_usable:
+            out.append(np.nan)
+        else:
+            out.append(t.error_percent)
+    return np.array(out)
+
+
+def window(x: np.ndarray, err: np.ndarray, x0: float, target: float) -> tuple[float, float] | None:
+    """The contiguous range of ``x`` around ``x0`` where |err| <= target (None where x0 itself fails)."""
+    ok = np.isfinite(err) & (np.abs(err) <= target)
+    i0 = int(np.argmin(np.abs(x - x0)))
+    if not ok[i0]:
+        return None
+    lo = hi = i0
+    while lo > 0 and ok[lo - 1]:
+        lo -= 1
+    while hi < len(x) - 1 and ok[hi + 1]:
+        hi += 1
+    return float(x[lo]), float(x[hi])
