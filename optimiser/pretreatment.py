@@ -34,6 +34,11 @@ class Prepared:
     ligand_totals: dict[str, float]
     findings: tuple[Finding, ...]
 
+    @property
+    def masked_metals(self) -> tuple[str, ...]:
+        """The metals taken as masked without a constant."""
+        return tuple(m for m, c in self.masked_by_assumption.items() if c > 0)
+
 
 def _reduce(agent, dose: float, metals: dict[str, float], out: list[Finding]) -> float:
     """Apply an agent's redox rules; returns the dose left [mol/L]."""

@@ -308,32 +308,39 @@ def _sharpness_band(p: Plan, eq: Equilibrium, eqf: Equilibrium, grid: Array, ref
     return V10, V90
 
 
+def _with_refined(p: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | None, ref: float):
+    """The coarse curve merged with the refined end-point region, and the 10 % / 90 % turned volumes."""
+    if eqf is None:
+        return p.V, eq, (None, None)
+    band = _sharpness_band(p, eq, eqf, grid, ref)
+    Vall = np.concatenate([p.V, grid])
+    order = np.argsort(Vall, kind="stable")
+    return Vall[order], _merge(eq, eqf, order), band
+
+
+def _endpoint_reads(p: Plan, eqp: Equilibrium, V_ep: float | None):
+    """Error, pM, indicator blank and co-titration at the end point (point 1 of the probed solve)."""
+    if V_ep is None:
+        return None, {}, None, {}
+    blank = readout.indicator_blank(eqp, 1, p.sample, p.method) if p.method.strategy.reads_release else None
+    return (p.method.strategy.error_percent(p, V_ep), _pM_at(eqp, 1, p.metals), blank,
+            readout.cotitrated(eqp, 1, p.sample, p.method))
+
+
 def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | None, eqp: Equilibrium, ref: float,
             V_ep: float | None, pH_drift: bool) -> Titration:
     sample, method, prep, system = plan.sample, plan.method, plan.prep, plan.system
     strategy, indicator = method.strategy, method.indicator_info
     comps, metals = system.components, plan.metals
     found = list(plan.findings)
-    V = plan.V
-    V10 = V90 = None
-    if eqf is not None:
-        V10, V90 = _sharpness_band(plan, eq, eqf, grid, ref)
-        Vall = np.concatenate([V, grid])
-        order = np.argsort(Vall, kind="stable")
-        V = Vall[order]
-        eq = _merge(eq, eqf, order)
-    elif ref < readout.UNBOUND_INDICATOR:
+    V, eq, (V10, V90) = _with_refined(plan, eq, eqf, grid, ref)
+    if eqf is None and ref < readout.UNBOUND_INDICATOR:
         found.append(fd.warning("indicator_unbound", indicator=indicator.name, pH=method.pH, bound=ref))
     ep = 1 if V_ep is not None else 0  # index of the end point in the probed solve (0 is the equivalence)
-    # pM of a metal not (yet) present is undefined: NaN, so that it is not plotted and is null in JSON
-    pM = {m: np.where(eq.totals[:, comps.index(m)] > 0, -np.log10(np.maximum(eq.free(m), 1e-300)), np.nan) for m in metals}
-    bound_fraction = {m: eq.bound(m, method.titrant) / np.maximum(eq.totals[:, comps.index(m)], 1e-300) for m in metals}
-    pM_eq = {m: float(-np.log10(max(eqp.free(m)[0], 1e-300))) for m in metals}
-    pM_ep = {m: float(-np.log10(max(eqp.free(m)[1], 1e-300))) for m in metals} if V_ep is not None else {}
-    error = None if V_ep is None else strategy.error_percent(plan, V_ep)
+    pM, bound_fraction = _curve_arrays(eq, method, metals)
+    pM_eq = _pM_at(eqp, 0, metals)
+    error, pM_ep, blank, cotitrated = _endpoint_reads(plan, eqp, V_ep)
     sharp = None if (V10 is None or V90 is None) else abs(V90 - V10)
-    blank = readout.indicator_blank(eqp, 1, sample, method) if (V_ep is not None and strategy.reads_release) else None
-    cotitrated = readout.cotitrated(eqp, 1, sample, method) if V_ep is not None else {}
     fr, colours = readout.indicator_forms(eq, method, metals)
     solids = {name: eq.solid_amount[:, j] for j, name in enumerate(system.solids) if np.any(eq.solid_amount[:, j] > 1e-12)}
     pre_start = tuple(eq.solids_present(0))
@@ -343,9 +350,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     spec_start = readout.speciation(eq, 0, prep, method, metals)
     blocked = readout.blocking(spec_start, sample, method)
     if V_ep is None and not blocked and ref >= readout.UNBOUND_INDICATOR and strategy.reads_release:
-        worst = readout.inferred_blocker(eq, method, metals)
-        if worst is not None:
-            blocked.append(worst)
+        blocked += [m for m in (readout.inferred_blocker(eq, method, metals),) if m is not None]
     found += _indicator_findings(plan, blocked, blank, sharp if V_ep is not None else None)
     usable = indicator.usable_pH[0] <= method.pH <= indicator.usable_pH[1]
     h_free = readout.dominant_free_form(fr, strategy.free_form_point())
@@ -361,9 +366,22 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
         precipitates_start=pre_start, precipitates_end=pre_end, blocked_by=tuple(blocked), indicator_usable=usable,
         excess_mL=plan.V_x, findings=tuple(found), speciation_start=spec_start,
         speciation_end=readout.speciation(eqp, ep, prep, method, metals), constants_used=tuple(system.uses()),
-        pH_drift=drift, masked_by_assumption=tuple(m for m, c in prep.masked_by_assumption.items() if c > 0),
+        pH_drift=drift, masked_by_assumption=prep.masked_metals,
         indicator_blank_percent=blank, slow_analytes=tuple(plan.slow), analyte_precipitates=tuple(analyte_solids),
         mass_balance_error=eq.mass_balance_error())
+
+
+def _curve_arrays(eq: Equilibrium, method: Method, metals: Sequence[str]) -> tuple[dict[str, Array], dict[str, Array]]:
+    """pM of each metal and its fraction bound to the titrant along the curve."""
+    comps = eq.system.components
+    # pM of a metal not (yet) present is undefined: NaN, so that it is not plotted and is null in JSON
+    pM = {m: np.where(eq.totals[:, comps.index(m)] > 0, -np.log10(np.maximum(eq.free(m), 1e-300)), np.nan) for m in metals}
+    bound_fraction = {m: eq.bound(m, method.titrant) / np.maximum(eq.totals[:, comps.index(m)], 1e-300) for m in metals}
+    return pM, bound_fraction
+
+
+def _pM_at(eq: Equilibrium, point: int, metals: Sequence[str]) -> dict[str, float]:
+    return {m: float(-np.log10(max(eq.free(m)[point], 1e-300))) for m in metals}
 
 
 def _indicator_findings(plan: Plan, blocked: list[str], blank: float | None, sharp: float | None) -> list[Finding]:
