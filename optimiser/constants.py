@@ -269,11 +269,12 @@ def _species_name(metal: str, ligand: str, n: int, h: int) -> str:
 @lru_cache(maxsize=1)
 def database() -> Database:
     """Read and check every table once (cached)."""
-    metals = {row["id"]: row for row in data.document("metals.yaml")}
-    reagents = data.document("reagents.yaml")
-    charges: dict[str, int] = {m: int(row["charge"]) for m, row in metals.items()}
-    for lig in reagents["ligands"]:
-        charges[lig["id"]] = int(lig["charge"])
+    metals = {row["id"]: row for row in data.entries("metals.yaml")}
+    charges: dict[str, int] = {m: row["charge"] for m, row in metals.items()}
+    for lig in data.entries("reagents.yaml", "ligands"):
+        if lig["id"] in charges:
+            raise DataError(f"ligand id {lig['id']!r} is also a metal id", "reagents.yaml", f"ligands/{lig['id']}", "id")
+        charges[lig["id"]] = lig["charge"]
     charges[H] = 1
     refs = data.references()
 

@@ -37,17 +37,21 @@ _SCHEMA: dict[str, Any] = {
 
 @dataclass(frozen=True)
 class SearchSpace:
-    """What the search may choose from (defaults: everything the database holds)."""
+    """What the search may choose from.
+
+    The default reagents are the catalogue's (each entry's ``search_default`` in the data files, in file
+    order) and the default back-titration standards are every standard in ``reagents.yaml``.
+    """
 
     pH_range: tuple[float, float] = (1.0, 13.5)
-    titrants: tuple[str, ...] = ("EDTA", "EGTA", "CDTA", "DTPA")
-    buffers: tuple[str, ...] = ("ammonia", "acetate", "hexamine", "NaOH", "nitric_acid")
-    masking: tuple[str, ...] = ("cyanide", "fluoride", "TEA", "thiosulfate", "thiourea", "iodide", "phen", "citrate", "tartrate")
-    indicators: tuple[str, ...] = ("EBT", "calmagite", "murexide", "calcon_carboxylic", "xylenol_orange", "PAN", "methylthymol_blue")
+    titrants: tuple[str, ...] = field(default_factory=lambda: catalogue().default_ids("titrants"))
+    buffers: tuple[str, ...] = field(default_factory=lambda: catalogue().default_ids("buffers"))
+    masking: tuple[str, ...] = field(default_factory=lambda: catalogue().default_ids("masking"))
+    indicators: tuple[str, ...] = field(default_factory=lambda: catalogue().default_ids("indicators"))
     max_masking_agents: int = 2
     max_hazard: int = 4
     modes: tuple[str, ...] = MODES
-    back_metals: tuple[str, ...] = ("Zn", "Mg")
+    back_metals: tuple[str, ...] = field(default_factory=lambda: tuple(catalogue().standards))
 
     def __post_init__(self) -> None:
         lo, hi = self.pH_range
@@ -283,9 +287,9 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
         kwargs["pH_range"] = (float(rng[0]), float(rng[1]))
     for key, resolver in (("titrants", lambda v: cat.titrant(v).id), ("buffers", lambda v: cat.buffer(v).id),
                           ("masking", lambda v: cat.masking_agent(v).id), ("indicators", lambda v: cat.indicator(v).id)):
-        chosen = _names(sp[key], resolver, marks, ("search", key)) if key in sp else getattr(base, key)
+        chosen = _names(sp[key], resolver, marks, ("search", key)) if key in sp else cat.default_ids(key)
         kwargs[key] = tuple(c for c in chosen if c.lower() not in forbid)
-    known = {x.lower() for x in (*base.titrants, *base.buffers, *base.masking, *cat.indicators)}
+    known = {x.lower() for x in cat.all_ids()}
     for f in forbid:
         if f not in known:
             raise marks.error(f"search.forbid: unknown reagent {f!r}; known: {', '.join(sorted(known))}", ("search", "forbid"))
@@ -299,9 +303,11 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
                 raise marks.error(f"search.modes: {m!r} is not a mode; allowed: {', '.join(MODES)}", ("search", "modes", i))
         kwargs["modes"] = tuple(sp["modes"])
     if "back_metals" in sp:
+        standards = list(cat.standards)
+        allowed = " or ".join([", ".join(standards[:-1]), standards[-1]] if len(standards) > 1 else standards)
         for i, m in enumerate(sp["back_metals"]):
-            if m not in ("Zn", "Mg"):
-                raise marks.error("search.back_metals: the back-titration standard must be Zn or Mg", ("search", "back_metals", i))
+            if m not in standards:
+                raise marks.error(f"search.back_metals: the back-titration standard must be {allowed}", ("search", "back_metals", i))
         kwargs["back_metals"] = tuple(sp["back_metals"])
     kwargs["max_hazard"] = kwargs.get("max_hazard", base.max_hazard)
     try:
