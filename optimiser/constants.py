@@ -28,6 +28,12 @@ T_REF_K = 298.15
 LN10 = np.log(10.0)
 H = "H+"  # the proton as a component
 
+# Where the model's corrections are trusted, checked wherever a sample's conditions are read (the scenario and
+# :class:`optimiser.conditional.Conditions`). Davies is fit to about 0.5 M and is no guide beyond 1 M; van 't Hoff
+# with a constant enthalpy is kept to liquid water at a bench.
+IONIC_STRENGTH_MAX_M = 1.0
+TEMPERATURE_RANGE_C = (0.0, 90.0)
+
 
 @dataclass(frozen=True)
 class FormationConstant:

@@ -14,7 +14,7 @@ from typing import Any
 
 import yaml
 
-from .constants import database
+from .constants import IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C, database
 from .errors import InputError, OptimiserError, ScenarioError
 from .reagents import HAZARD_NAMES, catalogue
 from .titration import Sample
@@ -222,11 +222,13 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
         raise marks.error("sample.volume is required (for example 50 mL)", ("sample",))
     V0 = field_(("sample", "volume"), volume_mL)
     I = field_(("sample", "ionic_strength"), molarity, "ionic strength") if "ionic_strength" in s else 0.1
-    if I > 1.0:
-        raise marks.error("sample.ionic_strength must be at most 1 M (Davies holds to about 0.5 M)", ("sample", "ionic_strength"))
+    if I > IONIC_STRENGTH_MAX_M:
+        raise marks.error(f"sample.ionic_strength must be at most {IONIC_STRENGTH_MAX_M:g} M (Davies holds to about 0.5 M)",
+                          ("sample", "ionic_strength"))
     T = field_(("sample", "temperature"), temperature_C) if "temperature" in s else 25.0
-    if not 0 <= T <= 90:
-        raise marks.error("sample.temperature must be between 0 and 90 degC", ("sample", "temperature"))
+    lo, hi = TEMPERATURE_RANGE_C
+    if not lo <= T <= hi:
+        raise marks.error(f"sample.temperature must be between {lo:g} and {hi:g} degC", ("sample", "temperature"))
 
     a = doc["analyte"]
     if "metals" not in a or not a["metals"]:

@@ -6,9 +6,11 @@ from importlib import resources
 import pytest
 
 from optimiser import data
-from optimiser.constants import H, database
-from optimiser.errors import UnknownNameError
+from optimiser.conditional import Conditions
+from optimiser.constants import IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C, H, database
+from optimiser.errors import InputError, ScenarioError, UnknownNameError
 from optimiser.reagents import KINDS, catalogue
+from optimiser.scenario import parse
 
 TABLES = ("protonation.csv", "complexes.csv", "hydrolysis.csv", "solids.csv", "water.csv")
 
@@ -241,3 +243,26 @@ def test_metal_colour_is_the_default_complex_colour():
     with pytest.raises(UnknownNameError, match="unknown metal 'Xq'"):
         cat.indicator("EBT").complex_colour("Xq")
 
+
+# --- limits of the model, defined once in constants.py ------------------------------------------------------
+
+@pytest.mark.parametrize("I,T,ok", [
+    (IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C[1], True),
+    (0.0, TEMPERATURE_RANGE_C[0], True),
+    (IONIC_STRENGTH_MAX_M + 0.01, 25.0, False),
+    (0.1, TEMPERATURE_RANGE_C[1] + 0.5, False),
+    (0.1, TEMPERATURE_RANGE_C[0] - 0.5, False),
+])
+def test_scenario_and_conditions_share_the_limits(I, T, ok):
+    """The scenario and Conditions accept and refuse the same ionic strengths and temperatures (1 M, 0-90 degC)."""
+    assert (IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C) == (1.0, (0.0, 90.0))
+    text = (f"name: limits\nsample: {{volume: 50 mL, ionic_strength: {I} M, temperature: {T} degC}}\n"
+            "analyte: {metals: {Ca: 1 mmol/L}}\ntitrant: {concentration: 0.01 M}\n")
+    if ok:
+        assert parse(text).sample.temperature_C == T
+        assert Conditions(ionic_strength_M=I, temperature_C=T).temperature_C == T
+    else:
+        with pytest.raises(ScenarioError, match="sample.(ionic_strength must be at most 1 M|temperature must be between 0 and 90)"):
+            parse(text)
+        with pytest.raises(InputError, match="(ionic strength must be between 0 and 1 M|temperature must be between 0 and 90)"):
+            Conditions(ionic_strength_M=I, temperature_C=T)
