@@ -204,20 +204,28 @@ def _describe(spec: Key) -> str:
     return what + (" (or null)" if spec.nullable else "")
 
 
-def _value(value: Any, spec: Key, where: tuple[str, str, str]) -> Any:
-    """``value`` checked against ``spec`` (a float key converts an integer); raises DataError(file, entry, key)."""
-    file, entry, key = where
+def _typed(value: Any, spec: Key, where: tuple[str, str, str]) -> Any:
+    """``value`` checked for type, null and allowed values (a float key converts an integer)."""
     if value is None:
         if spec.nullable:
             return None
-        raise DataError(f"must be {_describe(spec)}; got null", file, entry, key)
-    ok = isinstance(value, spec.type) and not (spec.type in (int, float) and isinstance(value, bool))
-    if spec.type is float and isinstance(value, int) and not isinstance(value, bool):
-        value, ok = float(value), True
-    if not ok:
-        raise DataError(f"must be {_describe(spec)}; got {value!r}", file, entry, key)
+        raise DataError(f"must be {_describe(spec)}; got null", *where)
+    is_number = isinstance(value, (int, float)) and not isinstance(value, bool)
+    if spec.type is float and is_number:
+        value = float(value)
+    elif not isinstance(value, spec.type) or (spec.type is int and not is_number):
+        raise DataError(f"must be {_describe(spec)}; got {value!r}", *where)
     if spec.choices is not None and value not in spec.choices:
-        raise DataError(f"{value!r} is not allowed; allowed: {', '.join(map(str, spec.choices))}", file, entry, key)
+        raise DataError(f"{value!r} is not allowed; allowed: {', '.join(map(str, spec.choices))}", *where)
+    return value
+
+
+def _value(value: Any, spec: Key, where: tuple[str, str, str]) -> Any:
+    """``value`` checked against ``spec``, nested lists and mappings included; raises DataError(file, entry, key)."""
+    value = _typed(value, spec, where)
+    if value is None:
+        return None
+    file, entry, key = where
     if spec.reference:
         _check_references(value if isinstance(value, list) else [value], where)
     if spec.keys is not None:
@@ -332,23 +340,10 @@ def entries(name: str, section: str | None = None) -> tuple[dict[str, Any], ...]
     if schema is None:
         known = ", ".join(f"{f}" + (f" ({s})" if s else "") for f, s in SCHEMAS)
         raise DataError(f"no schema is declared for section {section!r}; declared: {known}", name)
-    doc = document(name)
-    if section is not None:
-        if not isinstance(doc, Mapping):
-            raise DataError(f"must be a mapping with the sections {', '.join(s for f, s in SCHEMAS if f == name)}", name)
-        sections = [s for f, s in SCHEMAS if f == name]
-        for s in doc:
-            if s not in sections:
-                raise DataError(f"unknown section; allowed: {', '.join(sections)}", name, None, str(s))
-        if section not in doc:
-            raise DataError("missing section", name, None, section)
-        doc = doc[section]
     label = f"{section}/" if section else ""
-    if not isinstance(doc, list):
-        raise DataError("must be a list of entries", name, None, section)
     out: list[dict[str, Any]] = []
     seen: set[str] = set()
-    for i, item in enumerate(doc):
+    for i, item in enumerate(_section(name, section)):
         ident = item.get("id", item.get("name")) if isinstance(item, Mapping) else None
         entry = f"{label}{ident}" if isinstance(ident, str) else f"{label}[{i}]"
         if not isinstance(item, Mapping):
@@ -360,3 +355,21 @@ def entries(name: str, section: str | None = None) -> tuple[dict[str, Any], ...]
         seen.add(key)
         out.append(checked)
     return tuple(out)
+
+
+def _section(name: str, section: str | None) -> list:
+    """The list of entries of a file, or of one of its sections (the file's sections checked against SCHEMAS)."""
+    doc = document(name)
+    if section is not None:
+        sections = [s for f, s in SCHEMAS if f == name]
+        if not isinstance(doc, Mapping):
+            raise DataError(f"must be a mapping with the sections {', '.join(sections)}", name)
+        for s in doc:
+            if s not in sections:
+                raise DataError(f"unknown section; allowed: {', '.join(sections)}", name, None, str(s))
+        if section not in doc:
+            raise DataError("missing section", name, None, section)
+        doc = doc[section]
+    if not isinstance(doc, list):
+        raise DataError("must be a list of entries", name, None, section)
+    return doc

@@ -466,30 +466,45 @@ def _rule(d: Mapping[str, Any]) -> SafetyRule:
     return SafetyRule(d["name"], tuple(d["when_all"]), tuple(d["unless_any"]), d["hazard"], tuple(d["cautions"]))
 
 
-def _check_against_database(cat: Catalogue) -> None:
-    """Names in the catalogue that must resolve elsewhere: metals, ligands with charges, reagent ids."""
+def _check_metal(m: str, file: str, entry: str, key: str) -> None:
+    """``m`` is a metal id of the database (not another spelling of one)."""
     db = database()
+    try:
+        ident = db.metal(m)
+    except InputError as exc:
+        raise DataError(str(exc), file, entry, key) from None
+    if ident != m:
+        raise DataError(f"{m!r} is a spelling of {ident!r}: use the id", file, entry, key)
 
-    def metal(m: str, file: str, entry: str, key: str) -> None:
-        try:
-            if db.metal(m) != m:
-                raise DataError(f"{m!r} is a spelling of {db.metal(m)!r}: use the id", file, entry, key)
-        except InputError as exc:
-            raise DataError(str(exc), file, entry, key) from None
 
+def _check_indicators(cat: Catalogue) -> None:
+    charges = database().charges
     for ind in cat.indicators.values():
-        for m in (*ind.blocked_by, *(k for k in ind.complex_colours if k != "default")):
-            metal(m, "indicators.yaml", ind.id, "blocked_by" if m in ind.blocked_by else "complex_colours")
-        if ind.id not in db.charges:
+        for m in ind.blocked_by:
+            _check_metal(m, "indicators.yaml", ind.id, "blocked_by")
+        for m in ind.complex_colours:
+            if m != "default":
+                _check_metal(m, "indicators.yaml", ind.id, "complex_colours")
+        if ind.id not in charges:
             raise DataError("the indicator's ligand has no charge in reagents.yaml (ligands:)", "indicators.yaml", ind.id, "id")
-    for s in cat.standards.values():
-        metal(s.id, "reagents.yaml", f"standards/{s.id}", "id")
+
+
+def _check_ligands(cat: Catalogue) -> None:
+    charges = database().charges
     ligands = [(f"titrants/{t.id}", t.id) for t in cat.titrants.values()] + \
         [(f"buffers/{b.id}", b.ligand) for b in cat.buffers.values() if b.ligand] + \
         [(f"masking/{a.id}", a.ligand) for a in cat.masking.values()]
     for entry, lig in ligands:
-        if lig not in db.charges:
+        if lig not in charges:
             raise DataError(f"ligand {lig!r} has no charge in reagents.yaml (ligands:)", "reagents.yaml", entry, "ligand")
+    declared = {d["id"]: d["charge"] for d in data.entries("reagents.yaml", "ligands")}
+    for t in data.entries("reagents.yaml", "titrants"):
+        if declared.get(t["id"]) != t["charge"]:
+            raise DataError(f"charge {t['charge']} differs from the ligand's {declared.get(t['id'])} (ligands:)",
+                            "reagents.yaml", f"titrants/{t['id']}", "charge")
+
+
+def _check_safety_rules(cat: Catalogue) -> None:
     known = set(cat.all_ids())
     for rule in cat.safety_rules:
         for key in ("when_all", "unless_any"):
@@ -510,10 +525,10 @@ def catalogue() -> Catalogue:
         standards=_built("reagents.yaml", "standards", _standard),
         safety_rules=tuple(_built("reagents.yaml", "safety_rules", _rule).values()),
     )
-    charges = {d["id"]: d["charge"] for d in data.entries("reagents.yaml", "ligands")}
-    for t in data.entries("reagents.yaml", "titrants"):
-        if charges.get(t["id"]) != t["charge"]:
-            raise DataError(f"charge {t['charge']} differs from the ligand's {charges.get(t['id'])} (ligands:)",
-                            "reagents.yaml", f"titrants/{t['id']}", "charge")
-    _check_against_database(cat)
+    # names that must resolve elsewhere: metal ids, ligand charges, the reagent ids of the safety rules
+    _check_indicators(cat)
+    for s in cat.standards.values():
+        _check_metal(s.id, "reagents.yaml", f"standards/{s.id}", "id")
+    _check_ligands(cat)
+    _check_safety_rules(cat)
     return cat
