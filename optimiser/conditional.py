@@ -21,6 +21,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from .constants import H, FormationConstant, corrected, database, davies_A, davies_f, uncorrected_for_temperature
+from .constants import IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C  # the model's limits, defined once
 from .errors import InputError, MissingConstantError, UnknownNameError
 
 Array = NDArray[np.float64]
@@ -82,10 +83,10 @@ class Conditions:
     def __post_init__(self) -> None:
         I = np.asarray(self.ionic_strength_M, dtype=float)
         T = np.asarray(self.temperature_C, dtype=float)
-        if np.any(~np.isfinite(I)) or np.any(I < 0) or np.any(I > 1.0):
-            raise InputError(f"ionic strength must be between 0 and 1 M (Davies is fit to about 0.5 M); got {self.ionic_strength_M}")
-        if np.any(~np.isfinite(T)) or np.any(T < 0) or np.any(T > 90):
-            raise InputError(f"temperature must be between 0 and 90 degC; got {self.temperature_C}")
+        if np.any(~np.isfinite(I)) or np.any(I < 0) or np.any(I > IONIC_STRENGTH_MAX_M):
+            raise InputError(f"ionic strength must be between 0 and {IONIC_STRENGTH_MAX_M:g} M (Davies is fit to about 0.5 M); got {self.ionic_strength_M}")
+        if np.any(~np.isfinite(T)) or np.any(T < TEMPERATURE_RANGE_C[0]) or np.any(T > TEMPERATURE_RANGE_C[1]):
+            raise InputError(f"temperature must be between {TEMPERATURE_RANGE_C[0]:g} and {TEMPERATURE_RANGE_C[1]:g} degC; got {self.temperature_C}")
         if self.pH_scale not in PH_SCALES:
             raise InputError(f"pH scale must be one of {', '.join(PH_SCALES)}; got {self.pH_scale!r}")
 

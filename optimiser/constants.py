@@ -28,6 +28,12 @@ T_REF_K = 298.15
 LN10 = np.log(10.0)
 H = "H+"  # the proton as a component
 
+# Where the model's corrections are trusted, checked wherever a sample's conditions are read (the scenario and
+# :class:`optimiser.conditional.Conditions`). Davies is fit to about 0.5 M and is no guide beyond 1 M; van 't Hoff
+# with a constant enthalpy is kept to liquid water at a bench.
+IONIC_STRENGTH_MAX_M = 1.0
+TEMPERATURE_RANGE_C = (0.0, 90.0)
+
 
 @dataclass(frozen=True)
 class FormationConstant:
@@ -269,11 +275,12 @@ def _species_name(metal: str, ligand: str, n: int, h: int) -> str:
 @lru_cache(maxsize=1)
 def database() -> Database:
     """Read and check every table once (cached)."""
-    metals = {row["id"]: row for row in data.document("metals.yaml")}
-    reagents = data.document("reagents.yaml")
-    charges: dict[str, int] = {m: int(row["charge"]) for m, row in metals.items()}
-    for lig in reagents["ligands"]:
-        charges[lig["id"]] = int(lig["charge"])
+    metals = {row["id"]: row for row in data.entries("metals.yaml")}
+    charges: dict[str, int] = {m: row["charge"] for m, row in metals.items()}
+    for lig in data.entries("reagents.yaml", "ligands"):
+        if lig["id"] in charges:
+            raise DataError(f"ligand id {lig['id']!r} is also a metal id", "reagents.yaml", f"ligands/{lig['id']}", "id")
+        charges[lig["id"]] = lig["charge"]
     charges[H] = 1
     refs = data.references()
 

@@ -1,13 +1,18 @@
-"""Load the constants tables in ``optimiser/data`` once, through importlib.resources.
+"""Load the tables and documents in ``optimiser/data`` once, through importlib.resources, and check them.
 
-The tables are plain CSV and YAML (see ``data/README.md``); this module only reads them into plain
-Python structures and checks that each row has the fields it needs. Interpretation (charges, Davies,
-van 't Hoff) lives in :mod:`optimiser.constants`.
+The tables are plain CSV and YAML (see ``data/README.md``). This module reads them into plain Python
+structures and checks each against a small declared schema: the columns of every CSV table, and the keys
+of every kind of YAML entry (required keys, optional keys with their defaults, types, allowed values, and
+source keys that must resolve in ``references.csv``). Anything wrong raises :class:`DataError` naming the
+file, the entry and the key, and what is allowed. Interpretation (charges, Davies, van 't Hoff) lives in
+:mod:`optimiser.constants`; typed reagents in :mod:`optimiser.reagents`.
 """
 from __future__ import annotations
 
 import csv
 import io
+from collections.abc import Mapping
+from dataclasses import dataclass
 from functools import lru_cache
 from importlib import resources
 from typing import Any
@@ -16,44 +21,355 @@ import yaml
 
 from .errors import DataError
 
-_REQUIRED = {
-    "protonation.csv": ("ligand", "h", "log_beta", "temperature_C", "ionic_strength_M", "source"),
-    "complexes.csv": ("metal", "ligand", "n", "h", "log_beta", "temperature_C", "ionic_strength_M", "source"),
-    "hydrolysis.csv": ("metal", "n", "log_beta", "temperature_C", "ionic_strength_M", "source"),
-    "solids.csv": ("solid", "metal", "ligand", "n", "log_Ksp", "temperature_C", "ionic_strength_M", "source"),
-    "water.csv": ("reaction", "log_K", "temperature_C", "ionic_strength_M", "source"),
-    "references.csv": ("key", "citation"),
+# --- CSV tables -------------------------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Column:
+    """One column of a CSV table.
+
+    Attributes
+    ----------
+    type : type
+        ``str``, ``int`` or ``float``: what every non-empty cell must read as.
+    required : bool
+        Whether every row must fill it.
+    reference : bool
+        Whether its value is a source key that must resolve in ``references.csv``.
+    """
+
+    type: type = str
+    required: bool = True
+    reference: bool = False
+
+
+_OPTIONAL_TEXT = Column(str, required=False)
+_CONDITIONS = {"temperature_C": Column(float), "ionic_strength_M": Column(float)}
+_SOURCE = {"source": Column(str, reference=True), "note": _OPTIONAL_TEXT}
+_DH = {"dH_kJ_mol": Column(float, required=False)}
+
+COLUMNS: dict[str, dict[str, Column]] = {
+    "protonation.csv": {"ligand": Column(), "h": Column(int), "log_beta": Column(float), **_CONDITIONS,
+                        "medium": _OPTIONAL_TEXT, **_DH, **_SOURCE},
+    "complexes.csv": {"metal": Column(), "ligand": Column(), "n": Column(int), "h": Column(int), "log_beta": Column(float),
+                      **_CONDITIONS, "medium": _OPTIONAL_TEXT, **_DH, **_SOURCE},
+    "hydrolysis.csv": {"metal": Column(), "n": Column(int), "log_beta": Column(float), **_CONDITIONS, **_DH, **_SOURCE},
+    "solids.csv": {"solid": Column(), "metal": Column(), "ligand": Column(), "n": Column(int), "log_Ksp": Column(float),
+                   **_CONDITIONS, **_DH, **_SOURCE},
+    # the enthalpy of water is required: it moves the hydrolysis constants from the OH- to the H+ form
+    "water.csv": {"reaction": Column(), "log_K": Column(float), **_CONDITIONS, "dH_kJ_mol": Column(float), **_SOURCE},
+    "references.csv": {"key": Column(), "citation": Column(), "location": _OPTIONAL_TEXT, "note": _OPTIONAL_TEXT},
 }
 
 
 def _text(name: str) -> str:
-    return resources.files("optimiser").joinpath("data", name).read_text(encoding="utf-8")
+    try:
+        return resources.files("optimiser").joinpath("data", name).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise DataError(f"cannot read the file: {exc}", name) from None
+
+
+def _reads_as(value: str, kind: type) -> bool:
+    try:
+        kind(value)
+    except ValueError:
+        return False
+    return True
+
+
+def _check_row(name: str, line: int, row: Mapping[str, str | None], columns: Mapping[str, Column]) -> None:
+    for col, spec in columns.items():
+        value = (row.get(col) or "").strip()
+        if not value:
+            if spec.required:
+                raise DataError("field is empty (it is required)", name, f"line {line}", col)
+        elif spec.type is not str and not _reads_as(value, spec.type):
+            what = "a whole number" if spec.type is int else "a number"
+            raise DataError(f"{value!r} is not {what}", name, f"line {line}", col)
+    if None in row:  # csv puts the cells beyond the header under the key None
+        raise DataError(f"the row has more cells than the header's {len(columns)} columns", name, f"line {line}")
 
 
 @lru_cache(maxsize=None)
 def table(name: str) -> tuple[dict[str, str], ...]:
-    """Rows of a CSV table as dicts of strings; required fields checked non-empty.
+    """Rows of a CSV table as dicts of strings, checked against its declared columns.
 
     Parameters
     ----------
     name : str
         File name inside ``optimiser/data``, e.g. ``"complexes.csv"``.
+
+    Raises
+    ------
+    DataError
+        A column missing from or unknown to the header, a required cell empty, a number that does not
+        read as one, or a source key that is not in ``references.csv`` (naming file, line and column).
     """
-    rows = tuple(csv.DictReader(io.StringIO(_text(name))))
+    reader = csv.DictReader(io.StringIO(_text(name)))
+    columns = COLUMNS.get(name)
+    if columns is None:
+        raise DataError(f"no columns are declared for this table; declared: {', '.join(COLUMNS)}", name)
+    header = reader.fieldnames or []
+    for col in header:
+        if col not in columns:
+            raise DataError(f"unknown column; allowed: {', '.join(columns)}", name, "header", col)
+    for col, spec in columns.items():
+        if spec.required and col not in header:
+            raise DataError("required column is missing", name, "header", col)
+    rows = tuple(reader)
+    refs = references() if name != "references.csv" else {}
     for i, row in enumerate(rows, start=2):
-        for field in _REQUIRED.get(name, ()):
-            if not (row.get(field) or "").strip():
-                raise DataError(f"{name} line {i}: field {field!r} is empty")
+        _check_row(name, i, row, columns)
+        for col, spec in columns.items():
+            if spec.reference and row[col] not in refs:
+                raise DataError(f"source key {row[col]!r} is not in references.csv", name, f"line {i}", col)
     return rows
 
 
 @lru_cache(maxsize=None)
-def document(name: str) -> Any:
-    """A YAML document from ``optimiser/data`` (safe loading)."""
-    return yaml.safe_load(_text(name))
+def references() -> dict[str, dict[str, str]]:
+    """Reference key -> row of ``references.csv`` (keys unique)."""
+    out: dict[str, dict[str, str]] = {}
+    for i, row in enumerate(table("references.csv"), start=2):
+        if row["key"] in out:
+            raise DataError("duplicate reference key", "references.csv", f"line {i}", row["key"])
+        out[row["key"]] = row
+    return out
 
+
+# --- YAML documents ---------------------------------------------------------------------------------------
 
 @lru_cache(maxsize=None)
-def references() -> dict[str, dict[str, str]]:
-    """Reference key -> row of ``references.csv``."""
-    return {row["key"]: row for row in table("references.csv")}
+def document(name: str) -> Any:
+    """A YAML document from ``optimiser/data`` (safe loading), unchecked: see :func:`entries`."""
+    try:
+        return yaml.safe_load(_text(name))
+    except yaml.YAMLError as exc:
+        mark = getattr(exc, "problem_mark", None)
+        where = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
+        raise DataError(f"malformed YAML{where}: {getattr(exc, 'problem', None) or exc}", name) from None
+
+
+_TYPE_NAMES = {str: "text", int: "a whole number", float: "a number", bool: "true or false", list: "a list",
+               dict: "a mapping"}
+
+
+@dataclass(frozen=True)
+class Key:
+    """One key of a YAML entry (or of a mapping inside one).
+
+    Attributes
+    ----------
+    type : type
+        ``str``, ``int``, ``float`` (an integer is accepted and converted), ``bool``, ``list`` or ``dict``.
+    required : bool
+        Whether the entry must give it; otherwise ``default`` is filled in.
+    default : Any
+        The value of an optional key that is absent (a list or dict default is copied).
+    nullable : bool
+        Whether ``null`` is allowed.
+    choices : tuple, optional
+        The values allowed.
+    items : Key, optional
+        For a list: each item; for a mapping with free keys (metal ids, numbers of protons): each value.
+    keys : Mapping[str, Key], optional
+        For a mapping with fixed keys: its own schema (unknown keys rejected).
+    reference : bool
+        The value (or each item of the list) is a source key that must resolve in ``references.csv``.
+    """
+
+    type: type
+    required: bool = True
+    default: Any = None
+    nullable: bool = False
+    choices: tuple | None = None
+    items: Key | None = None
+    keys: Mapping[str, Key] | None = None
+    reference: bool = False
+
+
+Schema = Mapping[str, Key]
+
+
+def optional(type_: type, default: Any = None, **kwargs: Any) -> Key:
+    """A key an entry may leave out (``default`` is filled in)."""
+    return Key(type_, required=False, default=default, **kwargs)
+
+
+def _describe(spec: Key) -> str:
+    what = _TYPE_NAMES[spec.type]
+    if spec.items is not None and spec.type is list:
+        what += f" of {_TYPE_NAMES[spec.items.type]}"
+    if spec.choices is not None:
+        what = "one of " + ", ".join(map(str, spec.choices))
+    return what + (" (or null)" if spec.nullable else "")
+
+
+def _typed(value: Any, spec: Key, where: tuple[str, str, str]) -> Any:
+    """``value`` checked for type, null and allowed values (a float key converts an integer)."""
+    if value is None:
+        if spec.nullable:
+            return None
+        raise DataError(f"must be {_describe(spec)}; got null", *where)
+    is_number = isinstance(value, (int, float)) and not isinstance(value, bool)
+    if spec.type is float and is_number:
+        value = float(value)
+    elif not isinstance(value, spec.type) or (spec.type is int and not is_number):
+        raise DataError(f"must be {_describe(spec)}; got {value!r}", *where)
+    if spec.choices is not None and value not in spec.choices:
+        raise DataError(f"{value!r} is not allowed; allowed: {', '.join(map(str, spec.choices))}", *where)
+    return value
+
+
+def _value(value: Any, spec: Key, where: tuple[str, str, str]) -> Any:
+    """``value`` checked against ``spec``, nested lists and mappings included; raises DataError(file, entry, key)."""
+    value = _typed(value, spec, where)
+    if value is None:
+        return None
+    file, entry, key = where
+    if spec.reference:
+        _check_references(value if isinstance(value, list) else [value], where)
+    if spec.keys is not None:
+        return _mapping(value, spec.keys, where)
+    if spec.items is not None and spec.type is list:
+        return [_value(v, spec.items, (file, entry, f"{key}[{i}]")) for i, v in enumerate(value)]
+    if spec.items is not None and spec.type is dict:
+        return {k: _value(v, spec.items, (file, entry, f"{key}.{k}")) for k, v in value.items()}
+    return value
+
+
+def _check_references(keys: list, where: tuple[str, str, str]) -> None:
+    refs = references()
+    for k in keys:
+        if k not in refs:
+            raise DataError(f"source key {k!r} is not in references.csv (add it there, with the full citation)", *where)
+
+
+def _mapping(doc: Mapping[str, Any], schema: Schema, where: tuple[str, str, str]) -> dict[str, Any]:
+    """Every key of ``doc`` checked, every optional key filled with its default."""
+    file, entry, prefix = where
+    dotted = (prefix + ".") if prefix else ""
+    for k in doc:
+        if k not in schema:
+            raise DataError(f"unknown key; allowed: {', '.join(schema)}", file, entry, dotted + str(k))
+    out: dict[str, Any] = {}
+    for k, spec in schema.items():
+        if k not in doc:
+            if spec.required:
+                raise DataError(f"missing key (required: {', '.join(n for n, s in schema.items() if s.required)})",
+                                file, entry, dotted + k)
+            out[k] = spec.default.copy() if isinstance(spec.default, (list, dict)) else spec.default
+            continue
+        out[k] = _value(doc[k], spec, (file, entry, dotted + k))
+    return out
+
+
+_HAZARD = Key(int, choices=(0, 1, 2, 3, 4))
+_TEXTS = Key(list, items=Key(str))
+_NUMBER_PAIR = Key(list, items=Key(float))
+_SOLUTION = Key(dict, keys={"name": Key(str), "molarity_M": Key(float)})
+# Is the reagent in the search space of a scenario that does not list its kind? (data owns the defaults)
+_SEARCH_DEFAULT = Key(bool)
+
+RECIPE_KINDS = ("salt_plus_base_solution", "salt_plus_acid_solution", "base_plus_acid_solution", "strong_base", "strong_acid")
+
+SCHEMAS: dict[tuple[str, str | None], Schema] = {
+    ("metals.yaml", None): {
+        "id": Key(str), "element": Key(str), "charge": Key(int), "name": Key(str), "aliases": optional(list, [], items=Key(str)),
+        "internal": optional(bool, False), "binds_titrant": optional(bool, True), "slow_with_titrant": optional(bool, False)},
+    ("reagents.yaml", "ligands"): {"id": Key(str), "charge": Key(int)},
+    ("reagents.yaml", "titrants"): {
+        "id": Key(str), "name": Key(str), "charge": Key(int), "formula": Key(str), "salt": Key(str), "hazard": _HAZARD,
+        "cautions": _TEXTS, "complexity": Key(float), "search_default": _SEARCH_DEFAULT},
+    ("reagents.yaml", "buffers"): {
+        "id": Key(str), "name": Key(str), "ligand": Key(str, nullable=True), "pH_range": _NUMBER_PAIR,
+        "recipe": Key(dict, keys={
+            "kind": Key(str, choices=RECIPE_KINDS),
+            "acid_formula": optional(str), "base_formula": optional(str),
+            "acid_solution": optional(dict, keys=_SOLUTION.keys), "base_solution": optional(dict, keys=_SOLUTION.keys)}),
+        "strong_alkali": optional(bool, False), "default_total_M": optional(float, 0.0), "hazard": _HAZARD,
+        "cautions": _TEXTS, "search_default": _SEARCH_DEFAULT},
+    ("reagents.yaml", "masking"): {
+        "id": Key(str), "name": Key(str), "ligand": Key(str), "formula": Key(str), "salt": Key(str),
+        "density_g_mL": optional(float), "min_pH": Key(float), "dose_range_M": _NUMBER_PAIR, "hazard": _HAZARD,
+        "reduces": optional(dict, {}, items=Key(dict, keys={
+            "to": Key(str), "mol_reagent_per_mol_metal": Key(float), "note": Key(str)})),
+        "masks": optional(dict, {}, items=Key(dict, keys={
+            "pH_range": _NUMBER_PAIR, "min_ratio": Key(float), "note": Key(str)})),
+        "cautions": _TEXTS, "search_default": _SEARCH_DEFAULT},
+    ("reagents.yaml", "standards"): {
+        "id": Key(str), "name": Key(str), "salt": Key(str), "formula": Key(str), "hazard": _HAZARD, "cautions": _TEXTS},
+    ("reagents.yaml", "safety_rules"): {
+        "name": Key(str), "when_all": Key(list, items=Key(str)), "unless_any": optional(list, [], items=Key(str)),
+        "hazard": _HAZARD, "cautions": _TEXTS},
+    ("indicators.yaml", None): {
+        "id": Key(str), "name": Key(str), "aliases": optional(list, [], items=Key(str)),
+        "forms": Key(dict, items=Key(str)), "complex_colours": Key(dict, items=Key(str)),
+        "usable_pH": _NUMBER_PAIR, "blocked_by": Key(list, items=Key(str)), "needs_Mg_for_Ca": Key(bool),
+        "conc_M": Key(float), "dose": Key(str), "formula": Key(str), "hazard": _HAZARD,
+        "sources": Key(list, items=Key(str), reference=True), "search_default": _SEARCH_DEFAULT},
+}
+
+
+def entries(name: str, section: str | None = None) -> tuple[dict[str, Any], ...]:
+    """The entries of a YAML data file (or of one section of it), each checked against its schema.
+
+    Parameters
+    ----------
+    name : str
+        File name inside ``optimiser/data``, e.g. ``"indicators.yaml"``.
+    section : str, optional
+        Top-level key holding the list (``"titrants"``); None for a file that is a list itself.
+
+    Returns
+    -------
+    tuple of dict
+        One dict per entry with every declared key (optional ones filled with their defaults).
+
+    Raises
+    ------
+    DataError
+        An unknown or missing key, a value of the wrong type, an id given twice, or a source key that does
+        not resolve, naming the file, the entry (``section/id``) and the key, and what is allowed.
+
+    Examples
+    --------
+    >>> [t["id"] for t in entries("reagents.yaml", "titrants")]
+    ['EDTA', 'EGTA', 'CDTA', 'DTPA']
+    """
+    schema = SCHEMAS.get((name, section))
+    if schema is None:
+        known = ", ".join(f"{f}" + (f" ({s})" if s else "") for f, s in SCHEMAS)
+        raise DataError(f"no schema is declared for section {section!r}; declared: {known}", name)
+    label = f"{section}/" if section else ""
+    out: list[dict[str, Any]] = []
+    seen: set[str] = set()
+    for i, item in enumerate(_section(name, section)):
+        ident = item.get("id", item.get("name")) if isinstance(item, Mapping) else None
+        entry = f"{label}{ident}" if isinstance(ident, str) else f"{label}[{i}]"
+        if not isinstance(item, Mapping):
+            raise DataError(f"each entry must be a mapping with keys {', '.join(schema)}", name, entry)
+        checked = _mapping(item, schema, (name, entry, ""))
+        key = checked.get("id", checked.get("name"))
+        if key in seen:
+            raise DataError("given twice", name, entry, "id" if "id" in schema else "name")
+        seen.add(key)
+        out.append(checked)
+    return tuple(out)
+
+
+def _section(name: str, section: str | None) -> list:
+    """The list of entries of a file, or of one of its sections (the file's sections checked against SCHEMAS)."""
+    doc = document(name)
+    if section is not None:
+        sections = [s for f, s in SCHEMAS if f == name]
+        if not isinstance(doc, Mapping):
+            raise DataError(f"must be a mapping with the sections {', '.join(sections)}", name)
+        for s in doc:
+            if s not in sections:
+                raise DataError(f"unknown section; allowed: {', '.join(sections)}", name, None, str(s))
+        if section not in doc:
+            raise DataError("missing section", name, None, section)
+        doc = doc[section]
+    if not isinstance(doc, list):
+        raise DataError("must be a list of entries", name, None, section)
+    return doc

@@ -1,19 +1,25 @@
-"""The reagents a method can use: titrants, buffers, masking agents and indicators (from the data folder).
+"""The reagents a method can use: titrants, buffers, masking agents, indicators and back-titration standards.
 
+Everything here is read from the data folder (``reagents.yaml``, ``indicators.yaml``), each entry checked
+against its schema in :mod:`optimiser.data`; the lists the search uses by default, the bench complexity of
+each titrant, the buffer recipes and the safety rules for combinations of reagents are data, not code.
 Molar masses are computed from each reagent's formula with the periodictable package, not typed in.
 """
 from __future__ import annotations
 
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from functools import lru_cache
+from typing import Any
 
 import periodictable
 
 from . import data
 from .constants import database
-from .errors import UnknownNameError
+from .errors import DataError, InputError, UnknownNameError
 
 HAZARD_NAMES = ("none", "low", "moderate", "high", "severe")
+KINDS = ("titrants", "buffers", "masking", "indicators")  # the reagent kinds a search chooses from
 
 
 def molar_mass(formula: str) -> float:
@@ -25,34 +31,182 @@ def molar_mass(formula: str) -> float:
     return float(periodictable.formula(formula).mass)
 
 
+def _check_hazard(what: str, hazard: int) -> None:
+    if hazard not in range(len(HAZARD_NAMES)):
+        raise DataError(f"{what}: hazard must be 0-4 ({', '.join(HAZARD_NAMES)}); got {hazard!r}")
+
+
+def _check_range(what: str, pair: tuple[float, float]) -> None:
+    if len(pair) != 2 or not pair[0] < pair[1]:
+        raise DataError(f"{what}: a range must be [low, high] with low < high; got {list(pair)}")
+
+
 @dataclass(frozen=True)
 class Titrant:
+    """A complexing titrant.
+
+    Attributes
+    ----------
+    id, name : str
+        Id (also its ligand's id in the constants tables) and full name.
+    formula : str
+        Formula of the salt weighed (periodictable syntax).
+    salt : str
+        The salt as a bench knows it.
+    hazard : int
+        0-4 (:data:`HAZARD_NAMES`).
+    cautions : tuple of str
+        What a report prints about it.
+    complexity : float
+        What choosing it adds to a method's bench complexity [our own scale]: 0 for EDTA, 0.5 for a titrant
+        with fewer published methods and less certain constants (common practice).
+    search_default : bool
+        Whether a scenario that lists no titrants searches it.
+    """
+
     id: str
     name: str
     formula: str
     salt: str
     hazard: int
     cautions: tuple[str, ...]
+    complexity: float = 0.0
+    search_default: bool = True
+
+    def __post_init__(self) -> None:
+        _check_hazard(f"titrant {self.id}", self.hazard)
+        if not self.complexity >= 0:
+            raise DataError(f"titrant {self.id}: complexity must be 0 or more; got {self.complexity}")
 
     @property
     def molar_mass(self) -> float:
+        """Molar mass of the salt weighed [g/mol]."""
         return molar_mass(self.formula)
 
+
+@dataclass(frozen=True)
+class Solution:
+    """A stock solution a recipe measures out: its name and its concentration [mol/L]."""
+
+    name: str
+    molarity_M: float
+
+    def __post_init__(self) -> None:
+        if not self.molarity_M > 0:
+            raise DataError(f"solution {self.name!r}: molarity_M must be positive; got {self.molarity_M}")
+
+
+# What each recipe kind needs: (weighed formula, measured solution) by their keys in reagents.yaml.
+RECIPE_PARTS: dict[str, tuple[str | None, str]] = {
+    "salt_plus_base_solution": ("acid_formula", "base_solution"),
+    "salt_plus_acid_solution": ("base_formula", "acid_solution"),
+    "base_plus_acid_solution": ("base_formula", "acid_solution"),
+    "strong_base": (None, "base_solution"),
+    "strong_acid": (None, "acid_solution"),
+}
+
+
+@dataclass(frozen=True)
+class BufferRecipe:
+    """How a bench makes a buffer up for one aliquot.
+
+    Attributes
+    ----------
+    kind : str
+        One of :data:`RECIPE_PARTS`: ``salt_plus_base_solution`` (weigh the acid-form salt, add the base as
+        a solution), ``salt_plus_acid_solution`` (weigh the base-form salt, add the acid as a solution),
+        ``base_plus_acid_solution`` (weigh the whole base, protonate part of it with a strong acid),
+        ``strong_base`` or ``strong_acid`` (no complexing buffer: the pH set with a strong base or acid).
+    acid_formula, base_formula : str or None
+        Formulas of the salts weighed (periodictable syntax).
+    acid_solution, base_solution : Solution or None
+        The solutions measured out.
+    """
+
+    kind: str
+    acid_formula: str | None = None
+    base_formula: str | None = None
+    acid_solution: Solution | None = None
+    base_solution: Solution | None = None
+
+    def __post_init__(self) -> None:
+        if self.kind not in RECIPE_PARTS:
+            raise DataError(f"recipe kind {self.kind!r} is not known; allowed: {', '.join(RECIPE_PARTS)}")
+        for part in RECIPE_PARTS[self.kind]:
+            if part is not None and getattr(self, part) is None:
+                raise DataError(f"a {self.kind} recipe needs {part}")
+
     @property
-    def complexity(self) -> float:
-        return 0.0 if self.id == "EDTA" else 0.5
+    def weighed_formula(self) -> str | None:
+        """Formula of the salt weighed (None for a strong base or acid)."""
+        part = RECIPE_PARTS[self.kind][0]
+        return getattr(self, part) if part else None
+
+    @property
+    def solution(self) -> Solution:
+        """The solution measured out."""
+        return getattr(self, RECIPE_PARTS[self.kind][1])
 
 
 @dataclass(frozen=True)
 class Buffer:
+    """A buffer, or a strong acid or base that sets the pH without a complexing ligand.
+
+    Attributes
+    ----------
+    id, name : str
+        Id and full name.
+    ligand : str or None
+        The complexing ligand it brings (None for a strong acid or base).
+    pH_range : tuple of float
+        Where it holds the pH.
+    hazard : int
+        0-4.
+    cautions : tuple of str
+        What a report prints about it.
+    recipe : BufferRecipe
+        How to make it up.
+    default_total_M : float
+        Total concentration of its ligand in the titrated solution when a method does not choose [mol/L].
+    strong_alkali : bool
+        It raises the pH with strong alkali: where hydroxides precipitate, a procedure adds most of the
+        titrant before raising the pH.
+    search_default : bool
+        Whether a scenario that lists no buffers searches it.
+    """
+
     id: str
     name: str
     ligand: str | None
     pH_range: tuple[float, float]
     hazard: int
     cautions: tuple[str, ...]
+    recipe: BufferRecipe
     default_total_M: float = 0.0
-    raw: dict = field(default_factory=dict, compare=False, repr=False)
+    strong_alkali: bool = False
+    search_default: bool = True
+
+    def __post_init__(self) -> None:
+        _check_hazard(f"buffer {self.id}", self.hazard)
+        _check_range(f"buffer {self.id} pH_range", self.pH_range)
+        strong = self.recipe.kind in ("strong_base", "strong_acid")
+        if strong != (self.ligand is None):
+            raise DataError(f"buffer {self.id}: a {self.recipe.kind} recipe goes with "
+                            f"{'no ligand' if strong else 'a ligand'}; got ligand {self.ligand!r}")
+
+    @property
+    def raw(self) -> dict[str, Any]:
+        """The recipe's formulas and solutions under their keys in reagents.yaml (for callers not yet using ``recipe``)."""
+        r = self.recipe
+        out: dict[str, Any] = {"id": self.id, "ligand": self.ligand}
+        for key in ("acid_formula", "base_formula"):
+            if getattr(r, key) is not None:
+                out[key] = getattr(r, key)
+        for key in ("acid_solution", "base_solution"):
+            s = getattr(r, key)
+            if s is not None:
+                out[key] = {"name": s.name, "molarity_M": s.molarity_M}
+        return out
 
 
 @dataclass(frozen=True)
@@ -69,6 +223,11 @@ class MaskingAgent:
     reduces: dict = field(default_factory=dict, compare=False)
     masks: dict = field(default_factory=dict, compare=False)
     density_g_mL: float | None = None
+    search_default: bool = True
+
+    def __post_init__(self) -> None:
+        _check_hazard(f"masking agent {self.id}", self.hazard)
+        _check_range(f"masking agent {self.id} dose_range_M", self.dose_range_M)
 
     @property
     def molar_mass(self) -> float:
@@ -77,11 +236,29 @@ class MaskingAgent:
 
 @dataclass(frozen=True)
 class Indicator:
+    """A metallochromic indicator.
+
+    Attributes
+    ----------
+    forms : dict
+        Colour of the free dye by number of bound protons (0 = fully deprotonated).
+    complex_colours : Mapping[str, str]
+        Colour of its metal complex: ``"default"`` for every metal, and the metals whose complex differs.
+    usable_pH : tuple of float
+        Where the free dye and its metal complex differ in colour.
+    conc_M : float
+        Typical effective concentration in the titrated solution [mol/L].
+    sources : tuple of str
+        Keys in ``references.csv``.
+    search_default : bool
+        Whether a scenario that lists no indicators searches it.
+    """
+
     id: str
     name: str
     aliases: tuple[str, ...]
     forms: dict
-    metal_colour: str
+    complex_colours: Mapping[str, str]
     usable_pH: tuple[float, float]
     blocked_by: tuple[str, ...]
     needs_Mg_for_Ca: bool
@@ -89,12 +266,85 @@ class Indicator:
     dose: str
     hazard: int
     sources: tuple[str, ...]
+    formula: str | None = None
+    search_default: bool = True
+
+    def __post_init__(self) -> None:
+        _check_hazard(f"indicator {self.id}", self.hazard)
+        _check_range(f"indicator {self.id} usable_pH", self.usable_pH)
+        if "default" not in self.complex_colours:
+            raise DataError(f"indicator {self.id}: complex_colours needs a 'default' colour; got {dict(self.complex_colours)}")
 
     def free_colour(self, protons: int) -> str:
         return self.forms.get(protons, self.forms.get(str(protons), "?"))
 
     def complex_colour(self, metal: str) -> str:
-        return self.metal_colour.split(" (")[0]
+        """Colour of the indicator's complex with a metal (any spelling the database knows).
+
+        >>> catalogue().indicator("murexide").complex_colour("Ni2+")
+        'yellow'
+        >>> catalogue().indicator("murexide").complex_colour("Ca")
+        'pink'
+        """
+        return self.complex_colours.get(database().metal(metal), self.complex_colours["default"])
+
+    @property
+    def metal_colour(self) -> str:
+        """Colour of the metal complex for most metals (``complex_colours["default"]``)."""
+        return self.complex_colours["default"]
+
+
+@dataclass(frozen=True)
+class Standard:
+    """A back-titration standard: a metal whose standard solution titrates the excess titrant back.
+
+    Attributes
+    ----------
+    id : str
+        The metal's id in the database.
+    name, salt, formula : str
+        Name, the salt weighed as a bench knows it, and its formula (periodictable syntax).
+    hazard : int
+        0-4.
+    cautions : tuple of str
+        What a report prints about it.
+    """
+
+    id: str
+    name: str
+    salt: str
+    formula: str
+    hazard: int
+    cautions: tuple[str, ...]
+
+    def __post_init__(self) -> None:
+        _check_hazard(f"standard {self.id}", self.hazard)
+
+    @property
+    def molar_mass(self) -> float:
+        return molar_mass(self.formula)
+
+
+@dataclass(frozen=True)
+class SafetyRule:
+    """Cautions for a combination of reagents: a method using every reagent in ``when_all`` and none in
+    ``unless_any`` (reagent ids) carries ``name``, ``hazard`` (0-4) and ``cautions``."""
+
+    name: str
+    when_all: tuple[str, ...]
+    unless_any: tuple[str, ...]
+    hazard: int
+    cautions: tuple[str, ...]
+
+    def __post_init__(self) -> None:
+        _check_hazard(f"safety rule {self.name!r}", self.hazard)
+        if not self.when_all:
+            raise DataError(f"safety rule {self.name!r}: when_all must name at least one reagent")
+
+    def applies_to(self, reagent_ids: Iterable[str]) -> bool:
+        """Whether a method using these reagent ids falls under the rule."""
+        used = set(reagent_ids)
+        return all(r in used for r in self.when_all) and not any(r in used for r in self.unless_any)
 
 
 @dataclass(frozen=True)
@@ -103,6 +353,8 @@ class Catalogue:
     buffers: dict[str, Buffer]
     masking: dict[str, MaskingAgent]
     indicators: dict[str, Indicator]
+    standards: dict[str, Standard] = field(default_factory=dict)
+    safety_rules: tuple[SafetyRule, ...] = ()
 
     def titrant(self, name: str) -> Titrant:
         return _pick(self.titrants, name, "titrant")
@@ -113,6 +365,9 @@ class Catalogue:
     def masking_agent(self, name: str) -> MaskingAgent:
         return _pick(self.masking, name, "masking agent")
 
+    def standard(self, name: str) -> Standard:
+        return _pick(self.standards, name, "back-titration standard")
+
     def indicator(self, name: str) -> Indicator:
         if name in self.indicators:
             return self.indicators[name]
@@ -121,6 +376,37 @@ class Catalogue:
             if key in {ind.id.lower(), ind.name.lower().replace(" ", "_"), *(a.lower().replace(" ", "_") for a in ind.aliases)}:
                 return ind
         raise UnknownNameError("indicator", name, self.indicators)
+
+    def default_ids(self, kind: str) -> tuple[str, ...]:
+        """Ids a search uses when a scenario does not list this kind, in the data file's order.
+
+        Parameters
+        ----------
+        kind : str
+            ``"titrants"``, ``"buffers"``, ``"masking"`` or ``"indicators"``.
+
+        >>> catalogue().default_ids("titrants")
+        ('EDTA', 'EGTA', 'CDTA', 'DTPA')
+        """
+        if kind not in KINDS:
+            raise UnknownNameError("reagent kind", kind, KINDS)
+        return tuple(i for i, r in getattr(self, kind).items() if r.search_default)
+
+    def all_ids(self) -> tuple[str, ...]:
+        """Every titrant, buffer, masking agent and indicator id."""
+        return (*self.titrants, *self.buffers, *self.masking, *self.indicators)
+
+    def safety_rules_for(self, reagent_ids: Iterable[str]) -> list[SafetyRule]:
+        """The safety rules that apply to a method using these reagents (titrant, buffer, masking agents,
+        indicator: their ids), in the data file's order.
+
+        >>> [r.name for r in catalogue().safety_rules_for(["EDTA", "ammonia", "cyanide", "EBT"])]
+        ['acid and cyanide']
+        >>> catalogue().safety_rules_for(["EDTA", "NaOH", "cyanide", "calcon_carboxylic"])
+        []
+        """
+        ids = tuple(reagent_ids)
+        return [r for r in self.safety_rules if r.applies_to(ids)]
 
 
 def _pick(table: dict, name: str, kind: str):
@@ -132,25 +418,117 @@ def _pick(table: dict, name: str, kind: str):
     raise UnknownNameError(kind, name, table)
 
 
+def _solution(d: Mapping[str, Any] | None) -> Solution | None:
+    return None if d is None else Solution(d["name"], d["molarity_M"])
+
+
+def _built(file: str, section: str | None, make) -> dict[str, Any]:
+    """Entries of one kind as objects by id; a check that fails in ``__post_init__`` names the file and entry."""
+    out = {}
+    for d in data.entries(file, section):
+        ident = d.get("id", d.get("name"))
+        try:
+            out[ident] = make(d)
+        except DataError as exc:
+            raise DataError(exc.message, file, f"{section}/{ident}" if section else ident) from None
+    return out
+
+
+def _titrant(d: Mapping[str, Any]) -> Titrant:
+    return Titrant(d["id"], d["name"], d["formula"], d["salt"], d["hazard"], tuple(d["cautions"]), d["complexity"],
+                   d["search_default"])
+
+
+def _buffer(d: Mapping[str, Any]) -> Buffer:
+    r = d["recipe"]
+    recipe = BufferRecipe(r["kind"], r["acid_formula"], r["base_formula"], _solution(r["acid_solution"]),
+                          _solution(r["base_solution"]))
+    return Buffer(d["id"], d["name"], d["ligand"], tuple(d["pH_range"]), d["hazard"], tuple(d["cautions"]), recipe,
+                  d["default_total_M"], d["strong_alkali"], d["search_default"])
+
+
+def _masking(d: Mapping[str, Any]) -> MaskingAgent:
+    return MaskingAgent(d["id"], d["name"], d["ligand"], d["formula"], d["salt"], d["min_pH"], tuple(d["dose_range_M"]),
+                        d["hazard"], tuple(d["cautions"]), d["reduces"], d["masks"], d["density_g_mL"], d["search_default"])
+
+
+def _indicator(d: Mapping[str, Any]) -> Indicator:
+    return Indicator(d["id"], d["name"], tuple(d["aliases"]), {int(k): v for k, v in d["forms"].items()},
+                     dict(d["complex_colours"]), tuple(d["usable_pH"]), tuple(d["blocked_by"]), d["needs_Mg_for_Ca"],
+                     d["conc_M"], d["dose"], d["hazard"], tuple(d["sources"]), d["formula"], d["search_default"])
+
+
+def _standard(d: Mapping[str, Any]) -> Standard:
+    return Standard(d["id"], d["name"], d["salt"], d["formula"], d["hazard"], tuple(d["cautions"]))
+
+
+def _rule(d: Mapping[str, Any]) -> SafetyRule:
+    return SafetyRule(d["name"], tuple(d["when_all"]), tuple(d["unless_any"]), d["hazard"], tuple(d["cautions"]))
+
+
+def _check_metal(m: str, file: str, entry: str, key: str) -> None:
+    """``m`` is a metal id of the database (not another spelling of one)."""
+    db = database()
+    try:
+        ident = db.metal(m)
+    except InputError as exc:
+        raise DataError(str(exc), file, entry, key) from None
+    if ident != m:
+        raise DataError(f"{m!r} is a spelling of {ident!r}: use the id", file, entry, key)
+
+
+def _check_indicators(cat: Catalogue) -> None:
+    charges = database().charges
+    for ind in cat.indicators.values():
+        for m in ind.blocked_by:
+            _check_metal(m, "indicators.yaml", ind.id, "blocked_by")
+        for m in ind.complex_colours:
+            if m != "default":
+                _check_metal(m, "indicators.yaml", ind.id, "complex_colours")
+        if ind.id not in charges:
+            raise DataError("the indicator's ligand has no charge in reagents.yaml (ligands:)", "indicators.yaml", ind.id, "id")
+
+
+def _check_ligands(cat: Catalogue) -> None:
+    charges = database().charges
+    ligands = [(f"titrants/{t.id}", t.id) for t in cat.titrants.values()] + \
+        [(f"buffers/{b.id}", b.ligand) for b in cat.buffers.values() if b.ligand] + \
+        [(f"masking/{a.id}", a.ligand) for a in cat.masking.values()]
+    for entry, lig in ligands:
+        if lig not in charges:
+            raise DataError(f"ligand {lig!r} has no charge in reagents.yaml (ligands:)", "reagents.yaml", entry, "ligand")
+    declared = {d["id"]: d["charge"] for d in data.entries("reagents.yaml", "ligands")}
+    for t in data.entries("reagents.yaml", "titrants"):
+        if declared.get(t["id"]) != t["charge"]:
+            raise DataError(f"charge {t['charge']} differs from the ligand's {declared.get(t['id'])} (ligands:)",
+                            "reagents.yaml", f"titrants/{t['id']}", "charge")
+
+
+def _check_safety_rules(cat: Catalogue) -> None:
+    known = set(cat.all_ids())
+    for rule in cat.safety_rules:
+        for key in ("when_all", "unless_any"):
+            for r in getattr(rule, key):
+                if r not in known:
+                    raise DataError(f"{r!r} is not a reagent id; known: {', '.join(sorted(known))}", "reagents.yaml",
+                                    f"safety_rules/{rule.name}", key)
+
+
 @lru_cache(maxsize=1)
 def catalogue() -> Catalogue:
-    doc = data.document("reagents.yaml")
-    titrants = {t["id"]: Titrant(t["id"], t["name"], t["formula"], t["salt"], int(t["hazard"]), tuple(t["cautions"]))
-                for t in doc["titrants"]}
-    buffers = {b["id"]: Buffer(b["id"], b["name"], b.get("ligand"), tuple(b["pH_range"]), int(b["hazard"]),
-                               tuple(b["cautions"]), float(b.get("default_total_M", 0.0)), raw=b) for b in doc["buffers"]}
-    masking = {m["id"]: MaskingAgent(m["id"], m["name"], m["ligand"], m["formula"], m["salt"], float(m["min_pH"]),
-                                     tuple(m["dose_range_M"]), int(m["hazard"]), tuple(m["cautions"]),
-                                     m.get("reduces") or {}, m.get("masks") or {}, m.get("density_g_mL"))
-               for m in doc["masking"]}
-    indicators = {}
-    for d in data.document("indicators.yaml"):
-        indicators[d["id"]] = Indicator(
-            d["id"], d["name"], tuple(d.get("aliases", [])), {int(k): v for k, v in d["forms"].items()}, d["metal_colour"],
-            tuple(d["usable_pH"]), tuple(d["blocked_by"]), bool(d["needs_Mg_for_Ca"]), float(d["conc_M"]), d["dose"],
-            int(d["hazard"]), tuple(d["sources"]))
-    db = database()
-    for ind in indicators.values():
-        for m in ind.blocked_by:
-            db.metal(m)
-    return Catalogue(titrants, buffers, masking, indicators)
+    """Every reagent in the data folder, checked (cached)."""
+    cat = Catalogue(
+        titrants=_built("reagents.yaml", "titrants", _titrant),
+        buffers=_built("reagents.yaml", "buffers", _buffer),
+        masking=_built("reagents.yaml", "masking", _masking),
+        indicators=_built("indicators.yaml", None, _indicator),
+        standards=_built("reagents.yaml", "standards", _standard),
+        safety_rules=tuple(_built("reagents.yaml", "safety_rules", _rule).values()),
+    )
+    # names that must resolve elsewhere: metal ids, ligand charges, the reagent ids of the safety rules
+    _check_indicators(cat)
+    for s in cat.standards.values():
+        _check_metal(s.id, "reagents.yaml", f"standards/{s.id}", "id")
+    _check_ligands(cat)
+    _check_safety_rules(cat)
+    return cat

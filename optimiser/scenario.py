@@ -14,14 +14,16 @@ from typing import Any
 
 import yaml
 
-from .constants import database
+from .constants import IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C, database
 from .errors import InputError, OptimiserError, ScenarioError
+from .method import Sample
+from .objectives import OBJECTIVES as _OBJECTIVE_REGISTRY
 from .reagents import HAZARD_NAMES, catalogue
-from .titration import Sample
+from .strategies import strategy_ids
 from .units import concentration_M, molarity, temperature_C, volume_mL
 
-OBJECTIVES = ("error", "selectivity", "sharpness", "hazard", "complexity")
-MODES = ("direct", "back")
+OBJECTIVES = tuple(_OBJECTIVE_REGISTRY)  # the objectives the weights may name (optimiser.objectives)
+MODES = strategy_ids()  # the strategies a search may use (optimiser.strategies)
 
 _SCHEMA: dict[str, Any] = {
     "name": str, "description": str,
@@ -37,17 +39,21 @@ _SCHEMA: dict[str, Any] = {
 
 @dataclass(frozen=True)
 class SearchSpace:
-    """What the search may choose from (defaults: everything the database holds)."""
+    """What the search may choose from.
+
+    The default reagents are the catalogue's (each entry's ``search_default`` in the data files, in file
+    order) and the default back-titration standards are every standard in ``reagents.yaml``.
+    """
 
     pH_range: tuple[float, float] = (1.0, 13.5)
-    titrants: tuple[str, ...] = ("EDTA", "EGTA", "CDTA", "DTPA")
-    buffers: tuple[str, ...] = ("ammonia", "acetate", "hexamine", "NaOH", "nitric_acid")
-    masking: tuple[str, ...] = ("cyanide", "fluoride", "TEA", "thiosulfate", "thiourea", "iodide", "phen", "citrate", "tartrate")
-    indicators: tuple[str, ...] = ("EBT", "calmagite", "murexide", "calcon_carboxylic", "xylenol_orange", "PAN", "methylthymol_blue")
+    titrants: tuple[str, ...] = field(default_factory=lambda: catalogue().default_ids("titrants"))
+    buffers: tuple[str, ...] = field(default_factory=lambda: catalogue().default_ids("buffers"))
+    masking: tuple[str, ...] = field(default_factory=lambda: catalogue().default_ids("masking"))
+    indicators: tuple[str, ...] = field(default_factory=lambda: catalogue().default_ids("indicators"))
     max_masking_agents: int = 2
     max_hazard: int = 4
     modes: tuple[str, ...] = MODES
-    back_metals: tuple[str, ...] = ("Zn", "Mg")
+    back_metals: tuple[str, ...] = field(default_factory=lambda: tuple(catalogue().standards))
 
     def __post_init__(self) -> None:
         lo, hi = self.pH_range
@@ -175,14 +181,37 @@ def _hazard(value, marks, key) -> int:
     raise marks.error(f"max_hazard must be one of {', '.join(HAZARD_NAMES)} (or 0-4); got {value!r}", key)
 
 
-def parse(text: str, path: str = "<scenario>") -> Scenario:
-    """Validate a scenario document and return a :class:`Scenario`.
+class _Reader:
+    """A scenario document with the marks that locate its keys: reads one value at a time."""
 
-    Raises
-    ------
-    ScenarioError
-        With the file, line and column of the offending key or value.
-    """
+    def __init__(self, doc: Mapping[str, Any], marks: _Marks):
+        self.doc, self.marks = doc, marks
+
+    def error(self, message: str, key: tuple) -> ScenarioError:
+        return self.marks.error(message, key)
+
+    def value(self, key: tuple, fn, *args):
+        """``fn(value at key, *args)``; the package's errors come back located at the key."""
+        d: Any = self.doc
+        for k in key:
+            d = d[k]
+        try:
+            return fn(d, *args)
+        except ScenarioError:
+            raise
+        except OptimiserError as exc:
+            raise self.error(f"{'.'.join(key)}: {exc}", key) from None
+
+    def list_(self, section: Mapping, key: tuple) -> list:
+        """A list-valued key that is present (null is not a list: it is refused, not taken as empty)."""
+        v = section[key[-1]]
+        if not isinstance(v, list):
+            raise self.error(f"{'.'.join(map(str, key))} must be a list", key)
+        return v
+
+
+def _document(text: str, path: str) -> tuple[Mapping[str, Any], _Marks]:
+    """The YAML document (a mapping whose keys are all known) and the marks that locate its keys."""
     marks = _Marks(text, path)
     try:
         doc = yaml.safe_load(text)
@@ -196,146 +225,221 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
     for required in ("name", "sample", "analyte", "titrant"):
         if required not in doc:
             raise marks.error(f"missing key {required!r} (a scenario needs name, sample, analyte and titrant)", ())
-    db = database()
-    cat = catalogue()
+    return doc, marks
 
-    def field_(key: tuple, fn, *args):
-        d: Any = doc
-        for k in key:
-            d = d[k]
-        try:
-            return fn(d, *args)
-        except ScenarioError:
-            raise
-        except OptimiserError as exc:
-            raise marks.error(f"{'.'.join(key)}: {exc}", key) from None
 
-    name = doc["name"]
+def _name(r: _Reader) -> str:
+    name = r.doc["name"]
     if not isinstance(name, str) or not name.strip():
-        raise marks.error("name must be non-empty text", ("name",))
-    s = doc["sample"]
+        raise r.error("name must be non-empty text", ("name",))
+    return name.strip()
+
+
+def _conditions(r: _Reader) -> tuple[float, float, float]:
+    """Sample volume [mL], ionic strength [M] and temperature [degC] from ``sample``."""
+    s = r.doc["sample"]
     if "volume" not in s:
-        raise marks.error("sample.volume is required (for example 50 mL)", ("sample",))
-    V0 = field_(("sample", "volume"), volume_mL)
-    I = field_(("sample", "ionic_strength"), molarity, "ionic strength") if "ionic_strength" in s else 0.1
-    if I > 1.0:
-        raise marks.error("sample.ionic_strength must be at most 1 M (Davies holds to about 0.5 M)", ("sample", "ionic_strength"))
-    T = field_(("sample", "temperature"), temperature_C) if "temperature" in s else 25.0
-    if not 0 <= T <= 90:
-        raise marks.error("sample.temperature must be between 0 and 90 degC", ("sample", "temperature"))
+        raise r.error("sample.volume is required (for example 50 mL)", ("sample",))
+    V0 = r.value(("sample", "volume"), volume_mL)
+    I = r.value(("sample", "ionic_strength"), molarity, "ionic strength") if "ionic_strength" in s else 0.1
+    if I > IONIC_STRENGTH_MAX_M:
+        raise r.error(f"sample.ionic_strength must be at most {IONIC_STRENGTH_MAX_M:g} M (Davies holds to about 0.5 M)",
+                      ("sample", "ionic_strength"))
+    T = r.value(("sample", "temperature"), temperature_C) if "temperature" in s else 25.0
+    lo, hi = TEMPERATURE_RANGE_C
+    if not lo <= T <= hi:
+        raise r.error(f"sample.temperature must be between {lo:g} and {hi:g} degC", ("sample", "temperature"))
+    return V0, I, T
 
-    a = doc["analyte"]
+
+def _add_metals(r: _Reader, block: Mapping, key: tuple, metals: dict[str, float]) -> list[str]:
+    """Read ``block`` (metal: concentration) into ``metals``; the ids added, in order."""
+    db = database()
+    added = []
+    for m, v in block.items():
+        try:
+            mid = db.metal(str(m))
+        except InputError as exc:
+            raise r.error(str(exc), key + (m, "<key>")) from None
+        if db.metals[mid].get("internal"):
+            raise r.error(f"{m} is not a metal a sample can be given in", key + (m, "<key>"))
+        if mid in metals:
+            raise r.error(f"{mid} is given twice (as analyte and interferent, or twice)", key + (m, "<key>"))
+        try:
+            metals[mid] = concentration_M(v, mid)
+        except InputError as exc:
+            raise r.error(f"{'.'.join(map(str, key + (m,)))}: {exc}", key + (m,)) from None
+        added.append(mid)
+    return added
+
+
+def _metals(r: _Reader) -> tuple[dict[str, float], list[str], str, Any]:
+    """Every metal's concentration [M], the analyte metals, the analyte's label and ``report_as``."""
+    a = r.doc["analyte"]
     if "metals" not in a or not a["metals"]:
-        raise marks.error("analyte.metals is required: the metal or metals determined, with concentrations", ("analyte",))
+        raise r.error("analyte.metals is required: the metal or metals determined, with concentrations", ("analyte",))
     metals: dict[str, float] = {}
-    analyte = []
-
-    def add_metals(block: Mapping, key: tuple, is_analyte: bool) -> None:
-        for m, v in block.items():
-            try:
-                mid = db.metal(str(m))
-            except InputError as exc:
-                raise marks.error(str(exc), key + (m, "<key>")) from None
-            if db.metals[mid].get("internal"):
-                raise marks.error(f"{m} is not a metal a sample can be given in", key + (m, "<key>"))
-            if mid in metals:
-                raise marks.error(f"{mid} is given twice (as analyte and interferent, or twice)", key + (m, "<key>"))
-            try:
-                metals[mid] = concentration_M(v, mid)
-            except InputError as exc:
-                raise marks.error(f"{'.'.join(map(str, key + (m,)))}: {exc}", key + (m,)) from None
-            if is_analyte:
-                analyte.append(mid)
-
-    add_metals(a["metals"], ("analyte", "metals"), True)
+    analyte = _add_metals(r, a["metals"], ("analyte", "metals"), metals)
     if any(metals[m] <= 0 for m in analyte):
-        raise marks.error("every analyte metal needs a positive concentration", ("analyte", "metals"))
-    add_metals(doc.get("interferents") or {}, ("interferents",), False)
+        raise r.error("every analyte metal needs a positive concentration", ("analyte", "metals"))
+    _add_metals(r, r.doc.get("interferents") or {}, ("interferents",), metals)
     label = a.get("name")
     if label is not None and not isinstance(label, str):
-        raise marks.error("analyte.name must be text", ("analyte", "name"))
-    label = label or " + ".join(analyte)
-    report_as = a.get("report_as")
+        raise r.error("analyte.name must be text", ("analyte", "name"))
+    return metals, analyte, label or " + ".join(analyte), a.get("report_as")
 
-    t = doc["titrant"]
+
+def _titrant(r: _Reader) -> tuple[float, float]:
+    """Titrant concentration [M] and burette volume [mL]."""
+    t = r.doc["titrant"]
     if "concentration" not in t:
-        raise marks.error("titrant.concentration is required (for example 0.01 M)", ("titrant",))
-    cT = field_(("titrant", "concentration"), molarity, "titrant concentration")
+        raise r.error("titrant.concentration is required (for example 0.01 M)", ("titrant",))
+    cT = r.value(("titrant", "concentration"), molarity, "titrant concentration")
     if not 1e-4 <= cT <= 1.0:
-        raise marks.error("titrant.concentration must be between 0.0001 and 1 M", ("titrant", "concentration"))
-    burette = field_(("titrant", "burette"), volume_mL) if "burette" in t else 25.0
+        raise r.error("titrant.concentration must be between 0.0001 and 1 M", ("titrant", "concentration"))
+    burette = r.value(("titrant", "burette"), volume_mL) if "burette" in t else 25.0
+    return cT, burette
 
-    sp = doc.get("search") or {}
-    base = SearchSpace()
+
+def _forbid(r: _Reader, sp: Mapping) -> set[str]:
+    """The lower-cased names in ``search.forbid``, each checked to be a reagent."""
     forbid = set()
-    if "forbid" in sp:
-        for i, f in enumerate(sp["forbid"] or []):
-            if not isinstance(f, str):
-                raise marks.error("search.forbid entries must be reagent names", ("search", "forbid", i))
-            forbid.add(f.strip().lower())
-    kwargs: dict[str, Any] = {}
-    if "pH" in sp:
-        rng = sp["pH"]
-        if len(rng) != 2 or not all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in rng):
-            raise marks.error("search.pH must be [low, high], two numbers", ("search", "pH"))
-        if not (0 <= rng[0] < rng[1] <= 14):
-            raise marks.error(f"search.pH must satisfy 0 <= low < high <= 14; got {rng}", ("search", "pH"))
-        kwargs["pH_range"] = (float(rng[0]), float(rng[1]))
-    for key, resolver in (("titrants", lambda v: cat.titrant(v).id), ("buffers", lambda v: cat.buffer(v).id),
-                          ("masking", lambda v: cat.masking_agent(v).id), ("indicators", lambda v: cat.indicator(v).id)):
-        chosen = _names(sp[key], resolver, marks, ("search", key)) if key in sp else getattr(base, key)
-        kwargs[key] = tuple(c for c in chosen if c.lower() not in forbid)
-    known = {x.lower() for x in (*base.titrants, *base.buffers, *base.masking, *cat.indicators)}
+    for i, f in enumerate(sp.get("forbid") or []):
+        if not isinstance(f, str):
+            raise r.error("search.forbid entries must be reagent names", ("search", "forbid", i))
+        forbid.add(f.strip().lower())
+    return forbid
+
+
+def _check_forbid(r: _Reader, forbid: set[str]) -> None:
+    known = {x.lower() for x in catalogue().all_ids()}
     for f in forbid:
         if f not in known:
-            raise marks.error(f"search.forbid: unknown reagent {f!r}; known: {', '.join(sorted(known))}", ("search", "forbid"))
+            raise r.error(f"search.forbid: unknown reagent {f!r}; known: {', '.join(sorted(known))}", ("search", "forbid"))
+
+
+def _pH_range(r: _Reader, sp: Mapping) -> tuple[float, float]:
+    rng = sp["pH"]
+    if not isinstance(rng, list) or len(rng) != 2 or not all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in rng):
+        raise r.error("search.pH must be [low, high], two numbers", ("search", "pH"))
+    if not (0 <= rng[0] < rng[1] <= 14):
+        raise r.error(f"search.pH must satisfy 0 <= low < high <= 14; got {rng}", ("search", "pH"))
+    return float(rng[0]), float(rng[1])
+
+
+def _reagents(r: _Reader, sp: Mapping, forbid: set[str]) -> dict[str, tuple[str, ...]]:
+    """The titrants, buffers, masking agents and indicators to search: as listed, or the catalogue's defaults;
+    less the forbidden ones."""
+    cat = catalogue()
+    resolvers = {"titrants": lambda v: cat.titrant(v).id, "buffers": lambda v: cat.buffer(v).id,
+                 "masking": lambda v: cat.masking_agent(v).id, "indicators": lambda v: cat.indicator(v).id}
+    out = {}
+    for key, resolver in resolvers.items():
+        if key in sp:
+            chosen = _names(r.list_(sp, ("search", key)), resolver, r.marks, ("search", key))
+        else:
+            chosen = cat.default_ids(key)
+        out[key] = tuple(c for c in chosen if c.lower() not in forbid)
+    return out
+
+
+def _modes(r: _Reader, sp: Mapping) -> tuple[str, ...]:
+    modes = r.list_(sp, ("search", "modes"))
+    for i, m in enumerate(modes):
+        if m not in MODES:
+            raise r.error(f"search.modes: {m!r} is not a mode; allowed: {', '.join(MODES)}", ("search", "modes", i))
+    return tuple(modes)
+
+
+def _back_metals(r: _Reader, sp: Mapping) -> tuple[str, ...]:
+    standards = list(catalogue().standards)
+    metals = r.list_(sp, ("search", "back_metals"))
+    for i, m in enumerate(metals):
+        if m not in standards:
+            allowed = " or ".join([", ".join(standards[:-1]), standards[-1]] if len(standards) > 1 else standards)
+            raise r.error(f"search.back_metals: the back-titration standard must be {allowed}", ("search", "back_metals", i))
+    return tuple(metals)
+
+
+def _search(r: _Reader) -> SearchSpace:
+    sp = r.doc.get("search") or {}
+    forbid = _forbid(r, sp)
+    kwargs: dict[str, Any] = {}
+    if "pH" in sp:
+        kwargs["pH_range"] = _pH_range(r, sp)
+    kwargs.update(_reagents(r, sp, forbid))
+    _check_forbid(r, forbid)
     if "max_masking_agents" in sp:
+        if not isinstance(sp["max_masking_agents"], int):
+            raise r.error("search.max_masking_agents must be a whole number", ("search", "max_masking_agents"))
         kwargs["max_masking_agents"] = sp["max_masking_agents"]
     if "max_hazard" in sp:
-        kwargs["max_hazard"] = _hazard(sp["max_hazard"], marks, ("search", "max_hazard"))
+        kwargs["max_hazard"] = _hazard(sp["max_hazard"], r.marks, ("search", "max_hazard"))
     if "modes" in sp:
-        for i, m in enumerate(sp["modes"]):
-            if m not in MODES:
-                raise marks.error(f"search.modes: {m!r} is not a mode; allowed: {', '.join(MODES)}", ("search", "modes", i))
-        kwargs["modes"] = tuple(sp["modes"])
+        kwargs["modes"] = _modes(r, sp)
     if "back_metals" in sp:
-        for i, m in enumerate(sp["back_metals"]):
-            if m not in ("Zn", "Mg"):
-                raise marks.error("search.back_metals: the back-titration standard must be Zn or Mg", ("search", "back_metals", i))
-        kwargs["back_metals"] = tuple(sp["back_metals"])
-    kwargs["max_hazard"] = kwargs.get("max_hazard", base.max_hazard)
+        kwargs["back_metals"] = _back_metals(r, sp)
     try:
-        search = SearchSpace(**kwargs)
+        return SearchSpace(**kwargs)
     except InputError as exc:
-        raise marks.error(f"search: {exc}", ("search",)) from None
+        raise r.error(f"search: {exc}", ("search",)) from None
 
-    tg = doc.get("targets") or {}
-    t_kwargs: dict[str, Any] = {}
+
+def _weights(r: _Reader, tg: Mapping) -> dict[str, float]:
+    weights = tg["weights"]
+    if not isinstance(weights, Mapping):
+        raise r.error("targets.weights must be a mapping", ("targets", "weights"))
+    w = {}
+    for k, v in weights.items():
+        if k not in OBJECTIVES:
+            raise r.error(f"unknown objective {k!r}; allowed: {', '.join(OBJECTIVES)}", ("targets", "weights", k, "<key>"))
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or v < 0:
+            raise r.error(f"weight of {k} must be a number of 0 or more (0 drops the objective)", ("targets", "weights", k))
+        w[k] = float(v)
+    return {k: w.get(k, 1.0) for k in OBJECTIVES}
+
+
+def _targets(r: _Reader) -> Targets:
+    tg = r.doc.get("targets") or {}
+    kwargs: dict[str, Any] = {}
     if "max_error_percent" in tg:
         v = tg["max_error_percent"]
         if isinstance(v, bool) or not isinstance(v, (int, float)) or not v > 0:
-            raise marks.error("targets.max_error_percent must be a positive number", ("targets", "max_error_percent"))
-        t_kwargs["max_error_percent"] = float(v)
+            raise r.error("targets.max_error_percent must be a positive number", ("targets", "max_error_percent"))
+        kwargs["max_error_percent"] = float(v)
     if "weights" in tg:
-        w = {}
-        for k, v in tg["weights"].items():
-            if k not in OBJECTIVES:
-                raise marks.error(f"unknown objective {k!r}; allowed: {', '.join(OBJECTIVES)}", ("targets", "weights", k, "<key>"))
-            if isinstance(v, bool) or not isinstance(v, (int, float)) or v < 0:
-                raise marks.error(f"weight of {k} must be a number of 0 or more (0 drops the objective)", ("targets", "weights", k))
-            w[k] = float(v)
-        t_kwargs["weights"] = {k: w.get(k, 1.0) for k in OBJECTIVES}
+        kwargs["weights"] = _weights(r, tg)
     try:
-        targets = Targets(**t_kwargs)
+        return Targets(**kwargs)
     except InputError as exc:
-        raise marks.error(f"targets: {exc}", ("targets",)) from None
+        raise r.error(f"targets: {exc}", ("targets",)) from None
+
+
+def parse(text: str, path: str = "<scenario>") -> Scenario:
+    """Validate a scenario document and return a :class:`Scenario`.
+
+    The sections are read in order (name, sample, analyte and interferents, titrant, search, targets); the
+    first error found is raised.
+
+    Raises
+    ------
+    ScenarioError
+        With the file, line and column of the offending key or value.
+    """
+    doc, marks = _document(text, path)
+    r = _Reader(doc, marks)
+    name = _name(r)
+    V0, I, T = _conditions(r)
+    metals, analyte, label, report_as = _metals(r)
+    cT, burette = _titrant(r)
+    search = _search(r)
+    targets = _targets(r)
     try:
         sample = Sample(volume_mL=V0, metals=metals, analyte=tuple(analyte), ionic_strength_M=I, temperature_C=T)
     except InputError as exc:
-        raise marks.error(str(exc), ("analyte",)) from None
-    desc = doc.get("description") or ""
-    return Scenario(name=name.strip(), description=str(desc), sample=sample, analyte_label=str(label),
-                    report_as=report_as, titrant_conc_M=cT, burette_mL=burette, matrix=str(s.get("matrix") or ""),
+        raise r.error(str(exc), ("analyte",)) from None
+    return Scenario(name=name, description=str(doc.get("description") or ""), sample=sample, analyte_label=str(label),
+                    report_as=report_as, titrant_conc_M=cT, burette_mL=burette, matrix=str(doc["sample"].get("matrix") or ""),
                     search=search, targets=targets, source=path, as_read=doc)
 
 

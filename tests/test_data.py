@@ -6,8 +6,11 @@ from importlib import resources
 import pytest
 
 from optimiser import data
-from optimiser.constants import H, database
-from optimiser.reagents import catalogue
+from optimiser.conditional import Conditions
+from optimiser.constants import IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C, H, database
+from optimiser.errors import InputError, ScenarioError, UnknownNameError
+from optimiser.reagents import KINDS, catalogue
+from optimiser.scenario import parse
 
 TABLES = ("protonation.csv", "complexes.csv", "hydrolysis.csv", "solids.csv", "water.csv")
 
@@ -125,3 +128,141 @@ def test_tables_have_no_duplicate_rows():
     rows = list(csv.DictReader(io.StringIO(resources.files("optimiser").joinpath("data", "complexes.csv").read_text())))
     keys = [(r["metal"], r["ligand"], r["n"], r["h"]) for r in rows]
     assert len(keys) == len(set(keys))
+
+
+# --- the reagent catalogue: what the data now owns ----------------------------------------------------------
+
+def test_every_indicator_source_resolves():
+    """Every key in an indicator's sources is in references.csv (checked at load; asserted here on the real data)."""
+    refs = data.references()
+    for ind in catalogue().indicators.values():
+        assert ind.sources and all(s in refs for s in ind.sources), ind.id
+
+
+@pytest.mark.parametrize("kind,expected", [
+    ("titrants", ("EDTA", "EGTA", "CDTA", "DTPA")),
+    ("buffers", ("ammonia", "acetate", "hexamine", "NaOH", "nitric_acid")),
+    ("masking", ("cyanide", "fluoride", "TEA", "thiosulfate", "thiourea", "iodide", "phen", "citrate", "tartrate")),
+    ("indicators", ("EBT", "calmagite", "murexide", "calcon_carboxylic", "xylenol_orange", "PAN", "methylthymol_blue")),
+])
+def test_default_search_lists_are_the_ones_the_code_held(kind, expected):
+    """The search_default flags reproduce the lists scenario.py used to hard-code, in the same order."""
+    assert catalogue().default_ids(kind) == expected
+
+
+def test_default_ids_of_an_unknown_kind():
+    with pytest.raises(UnknownNameError, match="known reagent kinds: buffers, indicators, masking, titrants"):
+        catalogue().default_ids("standards_")
+
+
+def test_default_search_space_comes_from_the_catalogue():
+    from optimiser.scenario import SearchSpace
+    sp = SearchSpace()
+    cat = catalogue()
+    assert (sp.titrants, sp.buffers, sp.masking, sp.indicators) == tuple(cat.default_ids(k) for k in KINDS)
+    assert sp.back_metals == ("Zn", "Mg") == tuple(cat.standards)
+
+
+def test_titrant_complexity():
+    """EDTA adds nothing; EGTA, CDTA and DTPA add a half (our own scale, common practice)."""
+    assert {t.id: t.complexity for t in catalogue().titrants.values()} == {"EDTA": 0.0, "EGTA": 0.5, "CDTA": 0.5, "DTPA": 0.5}
+
+
+def test_back_titration_standards():
+    """Zn and Mg standards, their salts' molar masses from periodictable (ZnSO4.7H2O 287.5, MgSO4.7H2O 246.5 g/mol,
+    common practice)."""
+    cat = catalogue()
+    assert list(cat.standards) == ["Zn", "Mg"]
+    assert cat.standard("zn") is cat.standards["Zn"]
+    assert cat.standards["Zn"].molar_mass == pytest.approx(287.5, abs=0.1)
+    assert cat.standards["Mg"].molar_mass == pytest.approx(246.5, abs=0.1)
+    assert cat.standards["Zn"].hazard == 2 and cat.standards["Zn"].cautions
+    with pytest.raises(UnknownNameError, match="known back-titration standards: Mg, Zn"):
+        cat.standard("Cd")
+
+
+@pytest.mark.parametrize("buffer,kind,weighed,solution,molarity", [
+    ("ammonia", "salt_plus_base_solution", "NH4Cl", "concentrated ammonia (25 % NH3)", 13.4),
+    ("acetate", "salt_plus_acid_solution", "C2H3NaO2(H2O)3", "glacial acetic acid", 17.4),
+    ("hexamine", "base_plus_acid_solution", "C6H12N4", "hydrochloric acid 1 M", 1.0),
+    ("NaOH", "strong_base", None, "sodium hydroxide 1 M", 1.0),
+    ("nitric_acid", "strong_acid", None, "nitric acid 1 M", 1.0),
+])
+def test_buffer_recipes(buffer, kind, weighed, solution, molarity):
+    r = catalogue().buffer(buffer).recipe
+    assert (r.kind, r.weighed_formula, r.solution.name, r.solution.molarity_M) == (kind, weighed, solution, molarity)
+
+
+def test_only_sodium_hydroxide_raises_the_pH_with_strong_alkali():
+    assert [b.id for b in catalogue().buffers.values() if b.strong_alkali] == ["NaOH"]
+
+
+def test_buffer_raw_keeps_the_keys_older_callers_read():
+    """``Buffer.raw`` still offers acid_formula / base_formula / *_solution as reagents.yaml used to."""
+    raw = catalogue().buffer("ammonia").raw
+    assert raw["acid_formula"] == "NH4Cl"
+    assert raw["base_solution"] == {"name": "concentrated ammonia (25 % NH3)", "molarity_M": 13.4}
+    assert "base_formula" not in raw and "acid_solution" not in raw
+    assert catalogue().buffer("NaOH").raw["base_formula"] == "NaOH"
+
+
+@pytest.mark.parametrize("reagents,names", [
+    (["EDTA", "ammonia", "cyanide", "EBT"], ["acid and cyanide"]),
+    (["EDTA", "hexamine", "cyanide", "TEA", "xylenol_orange"], ["acid and cyanide"]),
+    (["EDTA", "NaOH", "cyanide", "calcon_carboxylic"], []),
+    (["EDTA", "ammonia", "TEA", "EBT"], []),
+    ([], []),
+])
+def test_safety_rules_for(reagents, names):
+    """The acid-and-cyanide caution goes with cyanide unless the method stays in NaOH (as the report printed it)."""
+    rules = catalogue().safety_rules_for(reagents)
+    assert [r.name for r in rules] == names
+    for r in rules:
+        assert r.hazard == 4
+        assert r.cautions == ("Never bring an acid near a cyanide-containing solution or its waste.",)
+
+
+@pytest.mark.parametrize("indicator,metal,colour", [
+    ("murexide", "Ca", "pink"),
+    ("murexide", "Ni", "yellow"),
+    ("murexide", "Cu2+", "yellow"),
+    ("murexide", "Co(II)", "yellow"),
+    ("EBT", "Mg", "wine-red"),
+    ("EBT", "Ni", "wine-red"),
+    ("xylenol_orange", "Zn", "red-violet"),
+])
+def test_indicator_complex_colour(indicator, metal, colour):
+    """Murexide's calcium complex is pink, its nickel, copper and cobalt complexes yellow (from memory)."""
+    assert catalogue().indicator(indicator).complex_colour(metal) == colour
+
+
+def test_metal_colour_is_the_default_complex_colour():
+    cat = catalogue()
+    assert cat.indicator("murexide").metal_colour == "pink"
+    assert cat.indicator("EBT").metal_colour == "wine-red"
+    with pytest.raises(UnknownNameError, match="unknown metal 'Xq'"):
+        cat.indicator("EBT").complex_colour("Xq")
+
+
+# --- limits of the model, defined once in constants.py ------------------------------------------------------
+
+@pytest.mark.parametrize("I,T,ok", [
+    (IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C[1], True),
+    (0.0, TEMPERATURE_RANGE_C[0], True),
+    (IONIC_STRENGTH_MAX_M + 0.01, 25.0, False),
+    (0.1, TEMPERATURE_RANGE_C[1] + 0.5, False),
+    (0.1, TEMPERATURE_RANGE_C[0] - 0.5, False),
+])
+def test_scenario_and_conditions_share_the_limits(I, T, ok):
+    """The scenario and Conditions accept and refuse the same ionic strengths and temperatures (1 M, 0-90 degC)."""
+    assert (IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C) == (1.0, (0.0, 90.0))
+    text = (f"name: limits\nsample: {{volume: 50 mL, ionic_strength: {I} M, temperature: {T} degC}}\n"
+            "analyte: {metals: {Ca: 1 mmol/L}}\ntitrant: {concentration: 0.01 M}\n")
+    if ok:
+        assert parse(text).sample.temperature_C == T
+        assert Conditions(ionic_strength_M=I, temperature_C=T).temperature_C == T
+    else:
+        with pytest.raises(ScenarioError, match="sample.(ionic_strength must be at most 1 M|temperature must be between 0 and 90)"):
+            parse(text)
+        with pytest.raises(InputError, match="(ionic strength must be between 0 and 1 M|temperature must be between 0 and 90)"):
+            Conditions(ionic_strength_M=I, temperature_C=T)

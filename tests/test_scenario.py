@@ -129,3 +129,37 @@ def test_fuzz_loader_on_raw_text(text):
         parse(text, "fuzz.yaml")
     except OptimiserError:
         pass
+
+
+@pytest.mark.parametrize("line,message", [
+    ("  titrants: null", "search.titrants must be a list"),
+    ("  buffers: null", "search.buffers must be a list"),
+    ("  modes: null", "search.modes must be a list"),
+    ("  pH: null", "search.pH must be [low, high], two numbers"),
+    ("  max_masking_agents: null", "search.max_masking_agents must be a whole number"),
+])
+def test_null_where_a_value_is_needed_is_located(tiny_scenario_text, line, message):
+    """A null search value was a bare TypeError from inside the parser; it is now a located ScenarioError."""
+    key = line.split(":")[0]
+    lines = [ln for ln in tiny_scenario_text.splitlines() if not ln.startswith(key + ":")]
+    at = lines.index("search:") + 1
+    text = "\n".join(lines[:at] + [line] + lines[at:]) + "\n"
+    with pytest.raises(ScenarioError, match=message.replace("[", r"\[").replace("]", r"\]")) as exc:
+        parse(text, "s.yaml")
+    assert exc.value.line == at + 1
+
+
+def test_null_weights_are_located(tiny_scenario_text):
+    text = tiny_scenario_text.replace("targets: {max_error_percent: 1.0}", "targets: {weights: null}")
+    with pytest.raises(ScenarioError, match="targets.weights must be a mapping"):
+        parse(text, "s.yaml")
+
+
+def test_demo_search_space_is_the_catalogue_defaults():
+    """The demo lists no reagents: it searches what the code used to list, now the data's defaults, in the same order."""
+    sp = demo().search
+    assert sp.titrants == ("EDTA", "EGTA", "CDTA", "DTPA")
+    assert sp.buffers == ("ammonia", "acetate", "hexamine", "NaOH", "nitric_acid")
+    assert sp.masking == ("cyanide", "fluoride", "TEA", "thiosulfate", "thiourea", "iodide", "phen", "citrate", "tartrate")
+    assert sp.indicators == ("EBT", "calmagite", "murexide", "calcon_carboxylic", "xylenol_orange", "PAN", "methylthymol_blue")
+    assert sp.back_metals == ("Zn", "Mg") and sp.max_masking_agents == 1 and sp.pH_range == (7.0, 13.0)

@@ -11,9 +11,9 @@ import numpy as np
 from .. import findings as fd
 from ..errors import InputError
 from ..equilibrium import solve
+from ..reagents import catalogue
 from .base import Array, Plan, Strategy, indicator_bound
 
-STANDARDS = ("Zn", "Mg")  # back-titration standards whose indicator and titrant constants the data hold
 
 
 class BackTitration(Strategy):
@@ -33,8 +33,9 @@ class BackTitration(Strategy):
     family = "back-titration"
 
     def check(self, method) -> None:
-        if method.back_metal not in STANDARDS:
-            raise InputError(f"the back-titration standard must be {' or '.join(STANDARDS)}; got {method.back_metal!r}")
+        standards = catalogue().standards  # the back-titration standards are data (reagents.yaml)
+        if method.back_metal not in standards:
+            raise InputError(f"the back-titration standard must be {' or '.join(standards)}; got {method.back_metal!r}")
         if not method.excess_ratio > 1.0:
             raise InputError("the titrant excess ratio of a back-titration must be above 1")
 
