@@ -275,3 +275,23 @@ def test_a_duplicate_reference_key_is_refused(edited):
     with pytest.raises(DataError, match="duplicate reference key") as exc:
         data.references()
     assert exc.value.key == "memory"
+
+
+def test_a_new_indicator_is_simulated_by_the_search_with_no_code_change(edited):
+    """The search itself takes the new indicator: it is one of the problem's indicator choices, and a candidate that
+    uses it is simulated and reads like EBT's (the same constants under another name)."""
+    from optimiser.candidate import Candidate
+    from optimiser.evaluation import Evaluator
+    from optimiser.search import MethodProblem
+
+    _copy_of_EBT(edited)
+    text = SCENARIO + ("interferents: {Mg: 0.3 mmol/L}\n"
+                       "search: {pH: [9.0, 10.5], titrants: [EDTA], buffers: [ammonia], max_masking_agents: 0, "
+                       "modes: [direct]}\n")
+    sc = parse(text)
+    assert "EBT_copy" in sc.search.indicators
+    ev = Evaluator(sc)
+    assert "EBT_copy" in MethodProblem(sc, ev).vars["indicator"].options
+    pair = ev.evaluate([Candidate(10.0, "ammonia", -1.0, "EDTA", (), ind, "direct", "Zn") for ind in ("EBT", "EBT_copy")])
+    assert pair[1].titration is not None and pair[1].titration.method.indicator == "EBT_copy"
+    assert pair[1].error_percent == pytest.approx(pair[0].error_percent, rel=1e-9)
