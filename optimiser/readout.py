@@ -27,6 +27,21 @@ CATEGORIES = ("free", "bound to titrant", "bound to indicator", "masked", "bound
               "solid")
 
 
+BUDGET_LABELS = {
+    "titrant_unbound": "titrant beyond what the metals hold (end point past equivalence)",
+    "indicator_blank": "analyte still held by the indicator",
+    "analyte_unbound": "analyte not yet bound to the titrant",
+    "standard_unbound": "back-titration standard not held by the titrant",
+}
+
+
+def budget_label(key: str) -> str:
+    """Words for an error-budget key (``cotitration:<metal>`` or one of :data:`BUDGET_LABELS`)."""
+    if key.startswith("cotitration:"):
+        return f"{key.split(':', 1)[1]} co-titrated"
+    return BUDGET_LABELS[key]
+
+
 def interp_crossing(x: Array, y: Array, level: float, start: int = 0) -> float | None:
     """First x at which y rises through ``level`` (linear interpolation), searching from index ``start``."""
     above = np.nonzero(y[start:] >= level)[0]

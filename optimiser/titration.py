@@ -56,6 +56,9 @@ class EndPoint:
         (before, after).
     pM : dict
         Metal -> pM at the end point.
+    budget : dict
+        The error split by cause [%] (keys worded by :func:`optimiser.readout.budget_label`); the parts add up to
+        ``error_percent``. Empty where there is no end point.
     """
 
     label: str
@@ -64,6 +67,7 @@ class EndPoint:
     sharpness_mL: float | None
     colour_change: tuple[str, str]
     pM: dict[str, float]
+    budget: dict[str, float] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -124,6 +128,11 @@ class Titration:
     @property
     def pM_ep(self) -> dict[str, float]:
         return self.endpoints[0].pM
+
+    @property
+    def budget(self) -> dict[str, float]:
+        """The first end point's error split by cause [%]."""
+        return self.endpoints[0].budget
 
     @property
     def warnings(self) -> tuple[str, ...]:
@@ -319,12 +328,13 @@ def _with_refined(p: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array
 
 
 def _endpoint_reads(p: Plan, eqp: Equilibrium, V_ep: float | None):
-    """Error, pM, indicator blank and co-titration at the end point (point 1 of the probed solve)."""
+    """Error, pM, indicator blank, co-titration and the error budget at the end point (point 1 of the probed solve)."""
     if V_ep is None:
-        return None, {}, None, {}
-    blank = readout.indicator_blank(eqp, 1, p.sample, p.method) if p.method.strategy.reads_release else None
-    return (p.method.strategy.error_percent(p, V_ep), _pM_at(eqp, 1, p.metals), blank,
-            readout.cotitrated(eqp, 1, p.sample, p.method))
+        return None, {}, None, {}, {}
+    strategy = p.method.strategy
+    blank = readout.indicator_blank(eqp, 1, p.sample, p.method) if strategy.reads_release else None
+    return (strategy.error_percent(p, V_ep), _pM_at(eqp, 1, p.metals), blank,
+            readout.cotitrated(eqp, 1, p.sample, p.method), strategy.budget(p, eqp, 1, V_ep))
 
 
 def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | None, eqp: Equilibrium, ref: float,
@@ -339,7 +349,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     ep = 1 if V_ep is not None else 0  # index of the end point in the probed solve (0 is the equivalence)
     pM, bound_fraction = _curve_arrays(eq, method, metals)
     pM_eq = _pM_at(eqp, 0, metals)
-    error, pM_ep, blank, cotitrated = _endpoint_reads(plan, eqp, V_ep)
+    error, pM_ep, blank, cotitrated, budget = _endpoint_reads(plan, eqp, V_ep)
     sharp = None if (V10 is None or V90 is None) else abs(V90 - V10)
     fr, colours = readout.indicator_forms(eq, method, metals)
     solids = {name: eq.solid_amount[:, j] for j, name in enumerate(system.solids) if np.any(eq.solid_amount[:, j] > 1e-12)}
@@ -358,7 +368,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
                                     indicator.free_colour(h_free))
     drift = _pH_drift(plan, V_ep) if (pH_drift and V_ep is not None and strategy.reads_release) else None
     endpoint = EndPoint(label=", ".join(sample.analyte), volume_mL=V_ep, error_percent=error, sharpness_mL=sharp,
-                        colour_change=change, pM=pM_ep)
+                        colour_change=change, pM=pM_ep, budget=budget)
     return Titration(
         sample=sample, method=method, volume_mL=V, pM=pM, bound_fraction=bound_fraction, indicator_fractions=fr,
         indicator_colours=colours, turned=np.clip(strategy.turned(plan, eq, ref), -1.0, 2.0), pH=np.full(len(V), method.pH),

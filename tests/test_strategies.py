@@ -2,6 +2,8 @@
 import pickle
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from optimiser import findings as fd
 from optimiser.errors import InputError, UnknownNameError
@@ -94,3 +96,30 @@ def test_method_and_titration_pickle():
     m = Method(10.0, "ammonia", "EDTA", 0.01, "EBT", masking=(("TEA", 0.01),))
     m2 = pickle.loads(pickle.dumps(m))
     assert m2 == m and m2.masking_agents[0].id == "TEA" and m2.strategy is REGISTRY["direct"]
+
+
+@settings(max_examples=25, deadline=None)
+@given(pH=st.floats(8.5, 10.5), mg=st.sampled_from([0.0, 1e-5, 5e-4, 2e-3]), fe=st.sampled_from([0.0, 1e-6, 2e-5, 5e-5]), back=st.booleans(),
+       tea=st.floats(0.0, 0.05))
+def test_error_budget_adds_up_to_the_error(pH, mg, fe, back, tea):
+    """The error split by cause adds up to the simulated error (mass balance of the titrant and the analyte)."""
+    metals = {"Ca": 1.5e-3, "Mg": mg, "Fe(III)": fe}
+    s = Sample(50, {m: c for m, c in metals.items() if c > 0}, ("Ca",))
+    masking = (("TEA", tea),) if tea > 1e-3 else ()
+    t = simulate(s, Method(pH, "ammonia", "EDTA", 0.01, "EBT", masking=masking, mode="back" if back else "direct",
+                           back_metal="Zn"), n_points=61)
+    if t.error_percent is None:
+        assert t.budget == {}
+        return
+    assert sum(t.budget.values()) == pytest.approx(t.error_percent, abs=1e-6)
+    if mg > 0 and not back:
+        assert t.budget["cotitration:Mg"] > 0
+
+
+def test_budget_of_aluminium_back_titration_counts_the_inert_complex():
+    """With a slow analyte held inert (aluminium, boiled with the excess), the parts still add up to the error."""
+    s = Sample(50, {"Al": 1e-3}, ("Al",))
+    t = simulate(s, Method(5.5, "acetate", "EDTA", 0.01, "xylenol_orange", mode="back", back_metal="Zn"))
+    assert t.error_percent is not None
+    assert sum(t.budget.values()) == pytest.approx(t.error_percent, abs=1e-6)
+    assert abs(t.budget["analyte_unbound"]) < 0.5

@@ -12,7 +12,7 @@ from .. import findings as fd
 from ..errors import InputError
 from ..equilibrium import solve
 from ..reagents import catalogue
-from .base import Array, Plan, Strategy, indicator_bound
+from .base import Array, Plan, Strategy, budget_parts, indicator_bound
 
 
 
@@ -64,6 +64,7 @@ class BackTitration(Strategy):
                 inert[iY] += bound
             plan.frozen = {m: float(first.bound(m, method.titrant)[0] / max(first.totals[0, comps.index(m)], 1e-300))
                            for m in plan.slow}
+            plan.inert_mM = {method.titrant: float(inert[iY]) * (V0 + V_x)}
         totals_before = plan.totals_before
 
         def totals_back(V: Array) -> Array:
@@ -87,6 +88,12 @@ class BackTitration(Strategy):
         method = plan.method
         n_an = plan.sample.n_analyte_mmol
         return ((method.titrant_conc_M * plan.V_x - method.back_concentration * V_ep) - n_an) / n_an * 100.0
+
+    def budget(self, plan: Plan, eq, point: int, V_ep: float) -> dict[str, float]:
+        V_total = plan.sample.volume_mL + plan.V_x + V_ep
+        method = plan.method
+        return budget_parts(plan, eq, point, V_total, inert_mmol=plan.inert_mM.get(method.titrant, 0.0),
+                            standard=method.back_metal, standard_added_M=method.back_concentration * V_ep / V_total)
 
     def colour_change(self, complex_colour: str, free_colour: str) -> tuple[str, str]:
         return free_colour, complex_colour

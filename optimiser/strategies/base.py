@@ -46,6 +46,8 @@ class Plan:
     findings : list of Finding
     frozen : dict
         Slow metal -> fraction held inert in its titrant complex.
+    inert_mM : dict
+        Component -> amount held in inert complexes, taken out of the equilibrium [mmol].
     V : array
         The coarse curve's volumes [mL].
     """
@@ -66,6 +68,7 @@ class Plan:
     V_x: float | None = None
     V_hi: float = 0.0
     frozen: dict[str, float] = field(default_factory=dict)
+    inert_mM: dict[str, float] = field(default_factory=dict)
     V: Array | None = None
 
 
@@ -136,6 +139,12 @@ class Strategy:
         """The titration error [%] of an end point at ``V_ep`` on the curve's axis."""
         raise NotImplementedError
 
+    def budget(self, plan: Plan, eq: Equilibrium, point: int, V_ep: float) -> dict[str, float]:
+        """The titration error at an end point, split by cause [% of the analyte]; the parts add up to
+        :meth:`error_percent`. Keys: ``cotitration:<metal>``, ``titrant_unbound``, ``indicator_blank``,
+        ``analyte_unbound`` and the strategy's own (:data:`optimiser.readout.BUDGET_LABELS` words them)."""
+        raise NotImplementedError
+
     def colour_change(self, complex_colour: str, free_colour: str) -> tuple[str, str]:
         """(colour before, colour after) the end point."""
         return complex_colour, free_colour
@@ -172,3 +181,44 @@ class Strategy:
     def json_fields(self, method: Any) -> dict[str, Any]:
         """The strategy's keys in the JSON result."""
         return {"mode": self.id, "back_metal": None}
+
+
+def titrant_parts(plan: Plan, eq: Equilibrium, point: int) -> dict[str, float]:
+    """Titrant held by each metal of the system at ``point``, and the rest ("unbound") [mol/L]."""
+    Y = plan.method.titrant
+    held = {m: float(eq.bound(Y, m)[point]) for m in plan.metals}
+    held["unbound"] = float(eq.totals[point, eq.system.index(Y)]) - sum(held.values())
+    return held
+
+
+def analyte_parts(plan: Plan, eq: Equilibrium, point: int, dilution: float) -> tuple[float, float, float]:
+    """The analyte at ``point``: its amount as the sample holds it (diluted), bound to the titrant, and held by the
+    indicator [mol/L]."""
+    sample, method = plan.sample, plan.method
+    comps = eq.system.components
+    total = sample.n_analyte_mmol / dilution
+    on_titrant = sum(float(eq.bound(method.titrant, a)[point]) for a in sample.analyte if a in comps)
+    on_indicator = sum(float(eq.bound(method.indicator, a)[point]) for a in sample.analyte if a in comps)
+    return total, on_titrant, on_indicator
+
+
+def budget_parts(plan: Plan, eq: Equilibrium, point: int, dilution_mL: float, inert_mmol: float = 0.0,
+                 standard: str | None = None, standard_added_M: float = 0.0) -> dict[str, float]:
+    """The error split by cause at ``point`` [% of the analyte] (shared by the strategies).
+
+    With A the analyte as the sample holds it, Y_m the titrant held by metal m, Y_u the titrant held by none, and
+    the analyte's parts bound to the titrant (plus any inert complex) and to the indicator:
+    error = sum over interferents of Y_m / A + Y_u / A - (analyte on the indicator) / A - (analyte bound to neither) / A
+    - (standard added but not held by the titrant) / A; the parts add up to the error exactly (mass balance).
+    """
+    A, on_titrant, on_indicator = analyte_parts(plan, eq, point, dilution_mL)
+    inert = inert_mmol / dilution_mL
+    held = titrant_parts(plan, eq, point)
+    parts = {f"cotitration:{m}": 100.0 * y / A for m, y in held.items()
+             if m not in ("unbound", standard) and m not in plan.sample.analyte}
+    parts["titrant_unbound"] = 100.0 * held["unbound"] / A
+    if standard is not None:
+        parts["standard_unbound"] = -100.0 * (standard_added_M - held[standard]) / A
+    parts["indicator_blank"] = -100.0 * on_indicator / A
+    parts["analyte_unbound"] = -100.0 * (A - on_titrant - inert - on_indicator) / A
+    return parts

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 
 from .. import findings as fd
-from .base import Array, Plan, Strategy, indicator_bound
+from .base import Array, Plan, Strategy, budget_parts, indicator_bound
 
 
 class DirectTitration(Strategy):
@@ -33,6 +33,9 @@ class DirectTitration(Strategy):
 
     def error_percent(self, plan: Plan, V_ep: float) -> float:
         return (V_ep - plan.V_eq) / plan.V_eq * 100.0
+
+    def budget(self, plan: Plan, eq, point: int, V_ep: float) -> dict[str, float]:
+        return budget_parts(plan, eq, point, plan.sample.volume_mL + V_ep)
 
 
 __all__ = ["DirectTitration"]
