@@ -11,10 +11,14 @@ from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass
 from multiprocessing import get_context
 from pathlib import Path
+from typing import Any
 
 from .equilibrium import warm_up
 from .errors import OptimiserError
+from .reagents import HAZARD_NAMES
+from .report import DEFAULT_FORMAT, safe_name
 from .results import dumps, to_json, write_atomic
+from .strategies import strategy
 
 
 @dataclass(frozen=True)
@@ -32,11 +36,20 @@ class BatchRow:
     seconds: float = 0.0
 
 
-def run_one(path: str, out_dir: str, seed: int, base: str | None = None) -> BatchRow:
+def method_text(candidate: Any) -> str:
+    """One line naming a recommended method (titrant, pH, buffer, indicator, masking, and its standard if any)."""
+    s = strategy(candidate.mode)
+    return (f"{candidate.titrant}, pH {candidate.pH:.2f} ({candidate.buffer}), {candidate.indicator}"
+            + (f", masking {', '.join(a for a, _ in candidate.masking)}" if candidate.masking else "")
+            + (f", {s.describe(candidate)}" if s.uses_standard else ""))
+
+
+def run_one(path: str, out_dir: str, seed: int, base: str | None = None, report_format: str = DEFAULT_FORMAT) -> BatchRow:
     """Load, search, report one scenario; never raises (a failure becomes a row with its message)."""
     import time
 
     from . import report
+    from .analysis import analyse
     from .scenario import load
     from .search import run_search
     t0 = time.perf_counter()
@@ -45,18 +58,14 @@ def run_one(path: str, out_dir: str, seed: int, base: str | None = None) -> Batc
         sc = load(path)
         name = sc.name
         result = run_search(sc, seed=seed)
-        html_path, json_path = report.write(result, Path(out_dir), dumps(to_json(result)), base=base)
+        report_path, json_path = report.write(result, Path(out_dir), dumps(to_json(result)), base=base,
+                                              report_format=report_format, analysis=analyse(result))
         e = result.recommended
         if e is None:
-            return BatchRow(path, name, True, html_path.name, json_path.name, "no feasible method", message="no feasible method found",
-                            seconds=time.perf_counter() - t0)
-        c = e.candidate
-        method = (f"{c.titrant}, pH {c.pH:.2f} ({c.buffer}), {c.indicator}"
-                  + (f", masking {', '.join(a for a, _ in c.masking)}" if c.masking else "")
-                  + (f", back-titration with {c.back_metal}" if c.mode == "back" else ""))
-        from .reagents import HAZARD_NAMES
-        return BatchRow(path, name, True, html_path.name, json_path.name, method, e.error_percent, e.margin,
-                        HAZARD_NAMES[e.hazard], seconds=time.perf_counter() - t0)
+            return BatchRow(path, name, True, report_path.name, json_path.name, "no feasible method",
+                            message="no feasible method found", seconds=time.perf_counter() - t0)
+        return BatchRow(path, name, True, report_path.name, json_path.name, method_text(e.candidate), e.error_percent,
+                        e.margin, HAZARD_NAMES[e.hazard], seconds=time.perf_counter() - t0)
     except OptimiserError as exc:
         return BatchRow(path, name, False, message=str(exc), seconds=time.perf_counter() - t0)
     except Exception as exc:  # a bug must not stop the other scenarios; it is reported with its type
@@ -114,37 +123,43 @@ def _progress(done: int, total: int, name: str) -> None:
     sys.stderr.flush()
 
 
-def run_batch(paths: list[Path], out_dir: Path, jobs: int | None = None, seed: int = 1, progress: bool = True) -> list[BatchRow]:
+def _unique_bases(paths: list[Path]) -> list[str]:
+    """Report names after the scenario files, made unique within the batch (name, name-2, ...)."""
+    bases, seen = [], set()
+    for p in paths:
+        b = stem = safe_name(Path(p).stem)
+        k = 2
+        while b in seen:
+            b = f"{stem}-{k}"
+            k += 1
+        seen.add(b)
+        bases.append(b)
+    return bases
+
+
+def run_batch(paths: list[Path], out_dir: Path, jobs: int | None = None, seed: int = 1, progress: bool = True,
+              report_format: str = DEFAULT_FORMAT) -> list[BatchRow]:
     """Run every scenario (in parallel processes) and write the index and the summary; rows in input order."""
     jobs = jobs or os.cpu_count() or 1
     out_dir.mkdir(parents=True, exist_ok=True)
     rows: dict[int, BatchRow] = {}
-    bases, seen = [], set()
-    for p in paths:  # reports are named after their files, made unique within the batch
-        from .report import safe_name
-        b = safe_name(Path(p).stem)
-        k = 2
-        while b in seen:
-            b = f"{safe_name(Path(p).stem)}-{k}"
-            k += 1
-        seen.add(b)
-        bases.append(b)
+    args = [(str(p), str(out_dir), seed, base, report_format) for p, base in zip(paths, _unique_bases(paths), strict=True)]
+
+    def done(k: int, row: BatchRow) -> None:
+        rows[k] = row
+        if progress:
+            _progress(len(rows), len(paths), row.name)
     if progress:
         _progress(0, len(paths), "")
     if jobs == 1:
-        for k, p in enumerate(paths):
-            rows[k] = run_one(str(p), str(out_dir), seed, bases[k])
-            if progress:
-                _progress(len(rows), len(paths), rows[k].name)
+        for k, arg in enumerate(args):
+            done(k, run_one(*arg))
     else:
         warm_up()  # compile (or load) the solver's kernel once, before the workers fork
         with ProcessPoolExecutor(max_workers=jobs, mp_context=get_context("fork")) as pool:
-            futures = {pool.submit(run_one, str(p), str(out_dir), seed, bases[k]): k for k, p in enumerate(paths)}
+            futures = {pool.submit(run_one, *arg): k for k, arg in enumerate(args)}
             for f in as_completed(futures):
-                k = futures[f]
-                rows[k] = f.result()
-                if progress:
-                    _progress(len(rows), len(paths), rows[k].name)
+                done(futures[f], f.result())
     if progress:
         sys.stderr.write("\n")
     ordered = [rows[k] for k in range(len(paths))]

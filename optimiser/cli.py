@@ -42,6 +42,13 @@ def _number(text: str, what: str, lo: float | None = None, hi: float | None = No
     return v
 
 
+def _format_option(parser: argparse.ArgumentParser) -> None:
+    from .report import DEFAULT_FORMAT, FORMATS
+    parser.add_argument("--format", default=DEFAULT_FORMAT, choices=tuple(FORMATS), metavar="FORMAT",
+                        help=f"report format: {', '.join(FORMATS)} (default {DEFAULT_FORMAT}); the JSON result is "
+                             "always written beside it")
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog=PROG, description="Method-development optimiser for selective complexometric titrations.")
     p.add_argument("--version", action="version", version=f"{PROG} {__version__}")
@@ -78,6 +85,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("scenario", nargs="?")
     r.add_argument("--out", default="reports", metavar="DIR")
     r.add_argument("--seed", default="1", metavar="N")
+    _format_option(r)
 
     ch = sub.add_parser("check", help="validate scenario files only")
     ch.add_argument("scenarios", nargs="+", metavar="SCENARIO")
@@ -87,12 +95,16 @@ def build_parser() -> argparse.ArgumentParser:
     b.add_argument("--out", default="reports", metavar="DIR")
     b.add_argument("--jobs", metavar="N")
     b.add_argument("--seed", default="1", metavar="N")
+    _format_option(b)
     return p
 
 
-def _cmd_conditional(a) -> int:
-    from .conditional import Conditions, check_pH, conditional_constant, free_metal_in_complex
+def _conditional_inputs(a):
+    """The metal, pH values, ligand totals, conditions and titrant of ``optimiser conditional``, checked."""
+    from .conditional import Conditions, check_pH
     from .constants import database
+    from .errors import UnknownNameError
+    from .reagents import catalogue
     from .units import molarity, temperature_C
     db = database()
     metal = db.metal(a.metal)
@@ -100,94 +112,102 @@ def _cmd_conditional(a) -> int:
     ligands = dict(_pair(x, "--ligand") for x in a.ligand)
     for lig in ligands:
         if lig not in db.charges or lig in db.metals or lig == "H+":
-            from .errors import UnknownNameError
             raise UnknownNameError("ligand", lig, [x for x in db.charges if x not in db.metals and x != "H+"])
     cond = Conditions(molarity(a.ionic_strength, "ionic strength"), temperature_C(a.temperature), a.pH_scale)
-    cc = conditional_constant(metal, a.titrant.upper() if a.titrant.upper() in ("EDTA", "EGTA", "CDTA", "DTPA") else a.titrant,
-                              pH, ligands, cond)
-    free = None
-    if a.complex is not None:
-        C = molarity(a.complex, "--complex")
-        free = free_metal_in_complex(cc.log_K_conditional, C) / 10 ** cc.log_alpha_M
+    try:  # a titrant of the catalogue in any case ("edta"); any other ligand as given
+        titrant = catalogue().titrant(a.titrant).id
+    except UnknownNameError:
+        titrant = a.titrant
+    return metal, pH, ligands, cond, titrant
+
+
+def _conditional_document(a, metal, pH, ligands, cond, cc) -> dict:
+    from .conditional import free_metal_in_complex
+    from .units import molarity
     out = {"metal": metal, "titrant": cc.titrant, "pH": pH.tolist(), "log_alpha_Y": cc.log_alpha_Y.tolist(),
            "log_alpha_M": cc.log_alpha_M.tolist(), "log_K": np.broadcast_to(cc.log_K, pH.shape).tolist(),
            "log_K_conditional": cc.log_K_conditional.tolist(), "log_alpha_MY": cc.log_alpha_MY.tolist(),
            "ionic_strength_M": float(cond.ionic_strength_M), "temperature_C": float(cond.temperature_C),
            "ligands_total_M": ligands, "pH_scale": a.pH_scale}
-    if free is not None:
-        out["free_metal_M"] = free.tolist()
+    if a.complex is not None:
+        C = molarity(a.complex, "--complex")
+        out["free_metal_M"] = (free_metal_in_complex(cc.log_K_conditional, C) / 10 ** cc.log_alpha_M).tolist()
         out["complex_M"] = C
     if cc.uncorrected_temperature:
         out["kept_at_own_temperature"] = [k.species for k in cc.uncorrected_temperature]
+    return out
+
+
+def _print_conditional(doc: dict, cc, cond) -> None:
+    metal, free = doc["metal"], doc.get("free_metal_M")
+    lig_text = ", ".join(f"{k} {v:g} M total" for k, v in doc["ligands_total_M"].items()) or "none"
+    print(f"{metal} with {cc.titrant}: log K = {doc['log_K'][0]:.3f} at I = {cond.ionic_strength_M:g} M, "
+          f"{cond.temperature_C:g} degC (source value {cc.constant.log_K:g} at I = {cc.constant.ionic_strength_M:g} M, "
+          f"{cc.constant.temperature_C:g} degC; {cc.constant.ref}); ligands: {lig_text}; pH scale: {doc['pH_scale']}")
+    head = f"{'pH':>6} {'log aY(H)':>10} {'log aM':>8} {'log aMY':>8} {'log K':>8} {'log K_cond':>10}"
+    print(head + (f" {'free ' + metal + ' / M':>16}" if free is not None else ""))
+    for i, p in enumerate(doc["pH"]):
+        line = (f"{p:6.2f} {doc['log_alpha_Y'][i]:10.3f} {doc['log_alpha_M'][i]:8.3f} {doc['log_alpha_MY'][i]:8.3f} "
+                f"{doc['log_K'][i]:8.3f} {doc['log_K_conditional'][i]:10.3f}")
+        print(line + (f" {free[i]:16.4e}" if free is not None else ""))
+    if "kept_at_own_temperature" in doc:
+        print("kept at their own temperature (no enthalpy known): " + ", ".join(doc["kept_at_own_temperature"]))
+
+
+def _cmd_conditional(a) -> int:
+    from .conditional import conditional_constant
+    metal, pH, ligands, cond, titrant = _conditional_inputs(a)
+    cc = conditional_constant(metal, titrant, pH, ligands, cond)
+    doc = _conditional_document(a, metal, pH, ligands, cond, cc)
     if a.json:
         from .results import dumps
-        sys.stdout.write(dumps(out))
-        return 0
-    lig_text = ", ".join(f"{k} {v:g} M total" for k, v in ligands.items()) or "none"
-    print(f"{metal} with {cc.titrant}: log K = {float(np.ravel(cc.log_K)[0]):.3f} at I = {cond.ionic_strength_M:g} M, "
-          f"{cond.temperature_C:g} degC (source value {cc.constant.log_K:g} at I = {cc.constant.ionic_strength_M:g} M, "
-          f"{cc.constant.temperature_C:g} degC; {cc.constant.ref}); ligands: {lig_text}; pH scale: {a.pH_scale}")
-    head = f"{'pH':>6} {'log aY(H)':>10} {'log aM':>8} {'log aMY':>8} {'log K':>8} {'log K_cond':>10}"
-    if free is not None:
-        head += f" {'free ' + metal + ' / M':>16}"
-    print(head)
-    for i, p in enumerate(pH):
-        line = (f"{p:6.2f} {cc.log_alpha_Y[i]:10.3f} {cc.log_alpha_M[i]:8.3f} {cc.log_alpha_MY[i]:8.3f} "
-                f"{float(np.ravel(np.broadcast_to(cc.log_K, pH.shape))[i]):8.3f} {cc.log_K_conditional[i]:10.3f}")
-        if free is not None:
-            line += f" {free[i]:16.4e}"
-        print(line)
-    if cc.uncorrected_temperature:
-        print("kept at their own temperature (no enthalpy known): " + ", ".join(k.species for k in cc.uncorrected_temperature))
+        sys.stdout.write(dumps(doc))
+    else:
+        _print_conditional(doc, cc, cond)
     return 0
 
 
-def _cmd_constants(a) -> int:
-    from .constants import database
-    from .reagents import catalogue
-    db = database()
-    cat = catalogue()
-    if a.name is None:
-        metals = [m for m, r in db.metals.items() if not r.get("internal")]
-        print("metals: " + ", ".join(metals))
-        print("titrants: " + ", ".join(cat.titrants))
-        print("buffers: " + ", ".join(cat.buffers))
-        print("masking agents: " + ", ".join(cat.masking))
-        print("indicators: " + ", ".join(cat.indicators))
-        print(f"{sum(len(v) for v in db.complexes.values())} complex constants, {sum(len(v) for v in db.protonation.values())} "
-              f"protonation constants, {sum(len(v) for v in db.hydrolysis.values())} hydrolysis constants, "
-              f"{sum(len(v) for v in db.solids.values())} solubility products, {len(db.references)} references")
-        print(f"'{PROG} constants NAME' lists one metal's or reagent's constants with their sources.")
-        return 0
-    name = a.name
-    key = None
+def _print_catalogue(db, cat) -> None:
+    metals = [m for m, r in db.metals.items() if not r.get("internal")]
+    print("metals: " + ", ".join(metals))
+    print("titrants: " + ", ".join(cat.titrants))
+    print("buffers: " + ", ".join(cat.buffers))
+    print("masking agents: " + ", ".join(cat.masking))
+    print("indicators: " + ", ".join(cat.indicators))
+    print(f"{sum(len(v) for v in db.complexes.values())} complex constants, {sum(len(v) for v in db.protonation.values())} "
+          f"protonation constants, {sum(len(v) for v in db.hydrolysis.values())} hydrolysis constants, "
+          f"{sum(len(v) for v in db.solids.values())} solubility products, {len(db.references)} references")
+    print(f"'{PROG} constants NAME' lists one metal's or reagent's constants with their sources.")
+
+
+def _reagent_key(name: str, db, cat) -> str | None:
+    """The species whose constants a reagent name stands for (a titrant, a buffer's or masking agent's ligand, an
+    indicator, or a ligand by its own name); None if the name is none of these."""
+    for table, attr in ((cat.titrants, None), (cat.buffers, "ligand"), (cat.masking, "ligand")):
+        for ident, obj in table.items():
+            if ident.lower() == name.lower():
+                return getattr(obj, attr) if attr else ident
     try:
-        key = db.metal(name)
+        return cat.indicator(name).id
     except InputError:
-        for table, attr in ((cat.titrants, None), (cat.buffers, "ligand"), (cat.masking, "ligand")):
-            for ident, obj in table.items():
-                if ident.lower() == name.lower():
-                    key = getattr(obj, attr) if attr else ident
-        if key is None:
-            try:
-                key = cat.indicator(name).id
-            except InputError:
-                pass
-        if key is None and name in db.charges:
-            key = name
+        pass
+    return name if name in db.charges else None
+
+
+def _constants_key(name: str, db, cat) -> str:
+    from .errors import UnknownNameError
+    try:
+        return db.metal(name)
+    except InputError:
+        key = _reagent_key(name, db, cat)
     if key is None:
-        from .errors import UnknownNameError
         allowed = [m for m, r in db.metals.items() if not r.get("internal")] + list(cat.titrants) + list(cat.buffers) + \
             list(cat.masking) + list(cat.indicators)
         raise UnknownNameError("name", name, allowed)
-    ks = db.constants_for(key)
-    rows = [{"reaction": k.reaction, "log_K": k.log_K, "temperature_C": k.temperature_C, "ionic_strength_M": k.ionic_strength_M,
-             "medium": k.medium, "dH_kJ_mol": k.dH_kJ_mol, "source": k.ref, "from_memory": k.from_memory, "note": k.note}
-            for k in ks]
-    if a.json:
-        from .results import dumps
-        sys.stdout.write(dumps({"name": key, "constants": rows, "references": {k.ref: db.references[k.ref]["citation"] for k in ks}}))
-        return 0
+    return key
+
+
+def _print_constants(key: str, rows: list[dict], db) -> None:
     print(f"{key}: {len(rows)} constants (log K at the conditions of the source; the model corrects them to the sample)")
     for r in rows:
         dH = f"dH {r['dH_kJ_mol']:g} kJ/mol" if r["dH_kJ_mol"] is not None else "dH not known"
@@ -197,6 +217,26 @@ def _cmd_constants(a) -> int:
     print("sources:")
     for ref in sorted({r["source"] for r in rows}):
         print(f"  [{ref}] {db.references[ref]['citation']}")
+
+
+def _cmd_constants(a) -> int:
+    from .constants import database
+    from .reagents import catalogue
+    db = database()
+    cat = catalogue()
+    if a.name is None:
+        _print_catalogue(db, cat)
+        return 0
+    key = _constants_key(a.name, db, cat)
+    ks = db.constants_for(key)
+    rows = [{"reaction": k.reaction, "log_K": k.log_K, "temperature_C": k.temperature_C, "ionic_strength_M": k.ionic_strength_M,
+             "medium": k.medium, "dH_kJ_mol": k.dH_kJ_mol, "source": k.ref, "from_memory": k.from_memory, "note": k.note}
+            for k in ks]
+    if a.json:
+        from .results import dumps
+        sys.stdout.write(dumps({"name": key, "constants": rows, "references": {k.ref: db.references[k.ref]["citation"] for k in ks}}))
+    else:
+        _print_constants(key, rows, db)
     return 0
 
 
@@ -222,67 +262,92 @@ def _solver_ready() -> None:
         timer.cancel()
 
 
-def _cmd_simulate(a) -> int:
+def _simulate_buffer(a, pH: float):
+    """The buffer of ``optimiser simulate`` and its total: as given, or the first that holds the pH."""
     from .reagents import catalogue
-    from .results import dumps, titration_json
     from .search import buffers_for
-    from .titration import Method, simulate
     from .units import molarity
-    sc = _load_scenario(a.scenario)
-    _solver_ready()
     cat = catalogue()
-    pH = _number(a.pH, "--pH", 0, 14)
     if a.buffer:
         name, _, conc = a.buffer.partition("=")
         buf = cat.buffer(name.strip())
-        total = molarity(conc, "buffer concentration") if conc else buf.default_total_M
-    else:
-        fits = buffers_for(pH, list(cat.buffers))
-        if not fits:
-            raise InputError(f"no buffer in the database holds pH {pH:g}; give one with --buffer NAME=CONC "
-                             f"(buffers: {', '.join(f'{b.id} pH {b.pH_range[0]:g}-{b.pH_range[1]:g}' for b in cat.buffers.values())})")
-        buf = cat.buffer(fits[0])
-        total = buf.default_total_M
+        return buf, (molarity(conc, "buffer concentration") if conc else buf.default_total_M)
+    fits = buffers_for(pH, list(cat.buffers))
+    if not fits:
+        raise InputError(f"no buffer in the database holds pH {pH:g}; give one with --buffer NAME=CONC "
+                         f"(buffers: {', '.join(f'{b.id} pH {b.pH_range[0]:g}-{b.pH_range[1]:g}' for b in cat.buffers.values())})")
+    buf = cat.buffer(fits[0])
+    return buf, buf.default_total_M
+
+
+def _simulate_method(a, sc):
+    from .titration import Method
+    from .units import molarity
+    pH = _number(a.pH, "--pH", 0, 14)
+    buf, total = _simulate_buffer(a, pH)
     cT = molarity(a.titrant_conc, "--titrant-conc") if a.titrant_conc else sc.titrant_conc_M
-    method = Method(pH=pH, buffer=buf.id, buffer_total_M=total, titrant=a.titrant, titrant_conc_M=cT,
-                    masking=tuple(_pair(x, "--masking") for x in a.masking), indicator=a.indicator, mode=a.mode,
-                    back_metal=a.back_metal)
+    return Method(pH=pH, buffer=buf.id, buffer_total_M=total, titrant=a.titrant, titrant_conc_M=cT,
+                  masking=tuple(_pair(x, "--masking") for x in a.masking), indicator=a.indicator, mode=a.mode,
+                  back_metal=a.back_metal)
+
+
+def _method_line(sc, method) -> str:
+    """One line naming a simulated method: titrant, pH, buffer, indicator, masking, and its standard if it needs one."""
+    buf, s = method.buffer_info, method.strategy
+    masking = f", masking {', '.join(f'{m} {c:g} M' for m, c in method.masking)}" if method.masking else ""
+    how = f", {s.describe(method)}" if s.uses_standard else ""
+    return (f"{sc.name}: {method.titrant} {method.titrant_conc_M:g} M at pH {method.pH:g} "
+            f"({buf.name}{f', {method.buffer_total_M:g} M' if buf.ligand else ''}), {method.indicator_info.name}{masking}{how}")
+
+
+def _endpoint_lines(t) -> list[str]:
+    from .report.text import fmt
+    if t.endpoint_mL is None:
+        return ["  end point: none (the indicator does not turn)"]
+    blank = f"  (of which {t.indicator_blank_percent:+.3f} % is analyte held by the indicator)" if t.indicator_blank_percent else ""
+    return [f"  end point:   {t.endpoint_mL:.3f} mL, colour {t.colour_change[0]} -> {t.colour_change[1]}",
+            f"  error:       {t.error_percent:+.3f} %{blank}",
+            f"  sharpness:   {fmt(t.sharpness_mL)} mL ({fmt(t.sharpness_drops)} drops of 0.05 mL)"
+            + ("  too gradual" if t.too_gradual else "")]
+
+
+def _titration_lines(t) -> list[str]:
+    """What ``optimiser simulate`` prints about a simulated titration, after the method's line."""
+    lines = [f"  equivalence: {t.equivalence_mL:.3f} mL" + (f"  (after {t.excess_mL:.3f} mL titrant excess)" if t.excess_mL else "")]
+    lines += _endpoint_lines(t)
+    if t.cotitrated:
+        lines.append("  co-titrated at the end point: " + ", ".join(f"{m} {100 * v:.2f} %" for m, v in t.cotitrated.items()))
+    if t.pM_eq:
+        lines.append("  pM at equivalence: " + ", ".join(f"{m} {v:.2f}" for m, v in t.pM_eq.items()))
+    if t.precipitates_start or t.precipitates_end:
+        lines.append(f"  solids: at the start {', '.join(t.precipitates_start) or 'none'}; at the end point "
+                     f"{', '.join(t.precipitates_end) or 'none'}")
+    if t.pH_drift is not None:
+        lines.append(f"  pH drift to the end point with the pH free: {t.pH_drift:+.2f}")
+    return lines + [f"  warning: {w}" for w in t.warnings] + [f"  assumption: {x}" for x in t.assumptions]
+
+
+def _cmd_simulate(a) -> int:
+    from .results import dumps, titration_json
+    from .titration import simulate
+    sc = _load_scenario(a.scenario)
+    _solver_ready()
+    method = _simulate_method(a, sc)
     t = simulate(sc.sample, method, pH_drift=True)
     if a.json:
         sys.stdout.write(dumps(titration_json(t)))
         return 0
-    from .report import fmt
-    print(f"{sc.name}: {method.titrant} {cT:g} M at pH {pH:g} ({buf.name}{f', {total:g} M' if buf.ligand else ''}), "
-          f"{cat.indicator(method.indicator).name}" + (f", masking {', '.join(f'{m} {c:g} M' for m, c in method.masking)}" if method.masking else "")
-          + (f", back-titration with {a.back_metal}" if a.mode == "back" else ""))
-    print(f"  equivalence: {t.equivalence_mL:.3f} mL" + (f"  (after {t.excess_mL:.3f} mL titrant excess)" if t.excess_mL else ""))
-    if t.endpoint_mL is None:
-        print("  end point: none (the indicator does not turn)")
-    else:
-        print(f"  end point:   {t.endpoint_mL:.3f} mL, colour {t.colour_change[0]} -> {t.colour_change[1]}")
-        print(f"  error:       {t.error_percent:+.3f} %"
-              + (f"  (of which {t.indicator_blank_percent:+.3f} % is analyte held by the indicator)" if t.indicator_blank_percent else ""))
-        print(f"  sharpness:   {fmt(t.sharpness_mL)} mL ({fmt(t.sharpness_drops)} drops of 0.05 mL)"
-              + ("  too gradual" if t.too_gradual else ""))
-    if t.cotitrated:
-        print("  co-titrated at the end point: " + ", ".join(f"{m} {100 * v:.2f} %" for m, v in t.cotitrated.items()))
-    if t.pM_eq:
-        print("  pM at equivalence: " + ", ".join(f"{m} {v:.2f}" for m, v in t.pM_eq.items()))
-    if t.precipitates_start or t.precipitates_end:
-        print(f"  solids: at the start {', '.join(t.precipitates_start) or 'none'}; at the end point {', '.join(t.precipitates_end) or 'none'}")
-    if t.pH_drift is not None:
-        print(f"  pH drift to the end point with the pH free: {t.pH_drift:+.2f}")
-    for w in t.warnings:
-        print(f"  warning: {w}")
-    for x in t.assumptions:
-        print(f"  assumption: {x}")
+    print(_method_line(sc, method))
+    print("\n".join(_titration_lines(t)))
     return 0
 
 
 def _cmd_run(a) -> int:
     from . import report
+    from .analysis import analyse
     from .results import dumps, to_json
     from .search import run_search
+    from .strategies import strategy
     sc = _load_scenario(a.scenario)
     seed = int(_number(a.seed, "--seed", 0, 2 ** 31 - 1))
     tty = sys.stderr.isatty()
@@ -296,7 +361,8 @@ def _cmd_run(a) -> int:
     if tty:
         sys.stderr.write("\n")
     sys.stderr.write("writing the report...\n")
-    html_path, json_path = report.write(result, Path(a.out), dumps(to_json(result)))
+    report_path, json_path = report.write(result, Path(a.out), dumps(to_json(result)), report_format=a.format,
+                                          analysis=analyse(result))
     e = result.recommended
     print(f"{sc.name}: {result.evaluations} evaluations in {result.wall_time_s:.1f} s (seed {seed})")
     for note in result.notes:
@@ -305,12 +371,12 @@ def _cmd_run(a) -> int:
         c = e.candidate
         print(f"  recommended: {c.titrant} {sc.titrant_conc_M:g} M, pH {c.pH:.2f} ({c.buffer}), {c.indicator}, "
               + (", ".join(f"{m} {d * 1000:.3g} mM" for m, d in c.masking) or "no masking")
-              + (f", back-titration with {c.back_metal}" if c.mode == "back" else ", direct"))
+              + f", {strategy(c.mode).describe(c)}")
         t = result.recommended_titration
         print(f"  end point {t.endpoint_mL:.2f} mL, error {t.error_percent:+.2f} %, sharpness {t.sharpness_mL:.3f} mL, "
               f"robust pH {result.robust_pH[0]:.2f}-{result.robust_pH[1]:.2f}" if result.robust_pH else
               f"  end point {t.endpoint_mL:.2f} mL, error {t.error_percent:+.2f} %")
-    print(f"  report: {html_path}")
+    print(f"  report: {report_path}")
     print(f"  data:   {json_path}")
     return 0 if e is not None else 1
 
@@ -335,7 +401,7 @@ def _cmd_batch(a) -> int:
     jobs = int(_number(a.jobs, "--jobs", 1, 256)) if a.jobs else None
     seed = int(_number(a.seed, "--seed", 0, 2 ** 31 - 1))
     _solver_ready()
-    rows = run_batch(paths, Path(a.out), jobs=jobs, seed=seed, progress=True)
+    rows = run_batch(paths, Path(a.out), jobs=jobs, seed=seed, progress=True, report_format=a.format)
     for r in rows:
         print(f"{'ok    ' if r.ok else 'FAILED'} {r.name}: {r.method if r.ok else r.message}")
     print(f"index: {Path(a.out) / 'index.html'}")

@@ -1,7 +1,7 @@
-"""The search result as plain data: the bench procedure, the JSON document, and atomic file writing.
+"""The search result as JSON documents, and atomic file writing.
 
-The report and the JSON writer both read :func:`summary`, so the numbers an analyst reads in the report are
-the numbers in the JSON file.
+The bench procedure is :mod:`optimiser.procedure`; what a report shows is :mod:`optimiser.analysis`. Both read the
+same search result, so the numbers an analyst reads in the report are the numbers in the JSON file.
 """
 from __future__ import annotations
 
@@ -14,11 +14,10 @@ from typing import Any
 
 import numpy as np
 
-from .conditional import Conditions, ligand_fractions
-from .reagents import HAZARD_NAMES, catalogue, molar_mass
+from .reagents import HAZARD_NAMES
 from .search import Evaluation, SearchResult, strategy_of
+from .strategies import strategy
 from .titration import DROP_mL, Titration
-from .units import molar_mass_of_metal
 
 SCHEMA_VERSION = 1
 
@@ -29,130 +28,13 @@ def _r(x: float | None, nd: int = 4) -> float | None:
     return float(round(float(x), nd))
 
 
-def buffer_recipe(buffer_id: str, total_M: float, pH: float, V0_mL: float, I: float, T: float,
-                  extra_OH_mmol: float = 0.0) -> list[str]:
-    """How to make up the buffer for one aliquot (amounts per aliquot, then adjust with a pH meter)."""
-    cat = catalogue()
-    b = cat.buffer(buffer_id)
-    raw = b.raw
-    steps = []
-    if b.ligand:
-        fr = ligand_fractions(b.ligand, pH, Conditions(I, T))
-        base_frac = float(fr[0])  # fully deprotonated form: NH3, acetate, hexamine
-        n_tot = total_M * V0_mL  # mmol in the aliquot
-        n_base, n_acid = n_tot * base_frac, n_tot * (1 - base_frac)
-        if buffer_id == "ammonia":
-            m_acid = n_acid * molar_mass(raw["acid_formula"]) / 1000
-            v_base = n_base / raw["base_solution"]["molarity_M"]
-            steps.append(f"{n_acid:.3g} mmol NH4Cl ({m_acid * 1000:.0f} mg) and {v_base:.2f} mL {raw['base_solution']['name']} "
-                         f"({n_base:.3g} mmol NH3): total ammonia {total_M:.3g} mol/L in the aliquot")
-        elif buffer_id == "acetate":
-            m_base = n_base * molar_mass(raw["base_formula"]) / 1000
-            v_acid = n_acid / raw["acid_solution"]["molarity_M"]
-            steps.append(f"{m_base * 1000:.0f} mg sodium acetate trihydrate ({n_base:.3g} mmol) and {v_acid:.3f} mL "
-                         f"{raw['acid_solution']['name']} ({n_acid:.3g} mmol): total acetate {total_M:.3g} mol/L")
-        elif buffer_id == "hexamine":
-            m = n_tot * molar_mass(raw["base_formula"]) / 1000
-            v_acid = n_acid / raw["acid_solution"]["molarity_M"]
-            steps.append(f"{m * 1000:.0f} mg hexamine ({n_tot:.3g} mmol) and {v_acid:.2f} mL {raw['acid_solution']['name']}: "
-                         f"total hexamine {total_M:.3g} mol/L")
-    elif buffer_id == "NaOH":
-        n_oh = (V0_mL * 10 ** (pH - 14.0) / 0.78) + extra_OH_mmol
-        steps.append(f"about {n_oh / raw['base_solution']['molarity_M']:.2f} mL {raw['base_solution']['name']} "
-                     f"({n_oh:.3g} mmol OH-, of which {extra_OH_mmol:.3g} mmol go into hydroxide precipitates)")
-    elif buffer_id == "nitric_acid":
-        n_h = V0_mL * 10 ** (-pH) / 0.78
-        steps.append(f"about {n_h / raw['acid_solution']['molarity_M']:.2f} mL {raw['acid_solution']['name']} "
-                     f"(or NaOH if the sample is more acid)")
-    steps.append(f"adjust to pH {pH:.1f} with a calibrated pH meter")
-    return steps
-
-
-def method_summary(result: SearchResult, e: Evaluation, t: Titration) -> dict[str, Any]:
-    """The recommended method as a bench procedure and the figures of merit (plain data)."""
-    cat = catalogue()
-    sc = result.scenario
-    c = e.candidate
-    s = sc.sample
-    V0 = s.volume_mL
-    tit = cat.titrant(c.titrant)
-    ind = cat.indicator(c.indicator)
-    masking = []
-    for a, conc in c.masking:
-        agent = cat.masking_agent(a)
-        mmol = conc * V0
-        grams = mmol * agent.molar_mass / 1000
-        amount = f"{mmol:.3g} mmol = {grams * 1000:.1f} mg {agent.salt}"
-        if agent.density_g_mL:
-            amount += f" ({grams / agent.density_g_mL * 1000:.0f} uL)"
-        masking.append({"agent": a, "name": agent.name, "conc_M": conc, "mmol_per_aliquot": mmol, "grams_per_aliquot": grams,
-                        "amount": amount})
-    oh_extra = 0.0
-    if c.buffer == "NaOH":
-        for metal, sp in t.speciation_start.items():
-            if sp.get("solid", 0) > 0:
-                oh_extra += 2 * sp["solid"] * s.metals.get(metal, 0.0) * V0
-    buf = cat.buffer(c.buffer)
-    total_buf = 10 ** c.log_buffer if buf.ligand else 0.0
-    recipe = buffer_recipe(c.buffer, total_buf, c.pH, V0, s.ionic_strength_M, s.temperature_C, oh_extra)
-    cT = sc.titrant_conc_M
-    if c.mode == "back":
-        formula = (f"n({sc.analyte_label}) [mmol] = c(titrant) x V(titrant) - c({c.back_metal}) x V({c.back_metal}); "
-                   f"c [mmol/L] = n / {V0:g} mL x 1000")
-    else:
-        formula = f"c({sc.analyte_label}) [mmol/L] = {cT:g} mol/L x V(titrant) [mL] / {V0:g} mL x 1000"
-    if sc.report_as:
-        try:
-            M = molar_mass(sc.report_as)
-            formula += f"; as {sc.report_as}: mg/L = c [mmol/L] x {M:.2f}"
-        except (ValueError, KeyError):
-            pass
-    elif len(s.analyte) == 1:
-        formula += f"; mg/L {s.analyte[0]} = c [mmol/L] x {molar_mass_of_metal(s.analyte[0]):.3f}"
-    procedure = [f"Pipette {V0:g} mL of sample into a titration flask."]
-    if c.buffer == "NaOH" and t.precipitates_start:
-        procedure.append(f"Add about 90 % of the expected titrant ({0.9 * (t.endpoint_mL or t.equivalence_mL):.1f} mL) before "
-                         f"raising the pH, so that {', '.join(t.precipitates_start)} does not carry down the analyte.")
-    heated = c.mode == "back" and any("heating" in a for a in t.assumptions)
-    if heated:  # the slow analyte reacts with the excess in the still acidic sample, before its hydroxide can form
-        procedure.append(f"Add {t.excess_mL:.2f} mL of {cT:g} M {c.titrant} (an excess) to the sample before it is "
-                         "buffered (it should be acidic, about pH 3); boil gently for 3-5 minutes and cool (common practice).")
-    for m in masking:
-        procedure.append(f"Add {m['amount']} ({m['name']}; {m['conc_M'] * 1000:.3g} mmol/L in the aliquot).")
-    procedure.append(f"Buffer ({buf.name}): " + "; ".join(recipe) + ".")
-    if c.mode == "back":
-        procedure.append(("" if heated else f"Add {t.excess_mL:.2f} mL of {cT:g} M {c.titrant} (an excess); ")
-                         + f"{'Add' if heated else 'add'} {ind.name} ({ind.dose}) and titrate with {cT:g} M "
-                         f"{c.back_metal} standard from {t.colour_change[0]} to {t.colour_change[1]}.")
-    else:
-        procedure.append(f"Add {ind.name} ({ind.dose}) and titrate with {cT:g} M {c.titrant} from {t.colour_change[0]} "
-                         f"to {t.colour_change[1]}.")
-    procedure.append("Calculate: " + formula + ".")
-    return {
-        "aliquot_mL": V0, "pH": c.pH, "buffer": c.buffer, "buffer_name": buf.name, "buffer_total_M": total_buf,
-        "buffer_recipe": recipe, "titrant": c.titrant, "titrant_name": tit.name, "titrant_conc_M": cT,
-        "titrant_salt": tit.salt, "titrant_g_per_L": cT * tit.molar_mass, "masking": masking, "indicator": c.indicator,
-        "indicator_name": ind.name, "indicator_dose": ind.dose, "mode": c.mode,
-        "back_metal": c.back_metal if c.mode == "back" else None, "excess_mL": t.excess_mL,
-        "endpoint_mL": t.endpoint_mL, "equivalence_mL": t.equivalence_mL, "colour_change": list(t.colour_change),
-        "predicted_error_percent": t.error_percent, "selectivity_margin_log": e.margin, "endpoint_sharpness_mL": t.sharpness_mL,
-        "endpoint_sharpness_drops": t.sharpness_drops, "hazard": HAZARD_NAMES[e.hazard], "hazard_level": e.hazard,
-        "complexity": e.F[result.objectives.index("complexity")] if "complexity" in result.objectives else None,
-        "precipitates": sorted(set(t.precipitates_start) | set(t.precipitates_end)),
-        "robust_pH": list(result.robust_pH) if result.robust_pH else None,
-        "robust_dose": {k: list(v) for k, v in result.robust_dose.items()}, "formula": formula, "procedure": procedure,
-        "warnings": list(t.warnings), "assumptions": list(t.assumptions), "pH_drift": t.pH_drift,
-        "cotitrated": t.cotitrated, "strategy": strategy_of(e), "indicator_blank_percent": t.indicator_blank_percent,
-    }
-
-
 def _method_json(result: SearchResult, e: Evaluation) -> dict[str, Any]:
     c = e.candidate
     t = e.titration
     return {
         "pH": _r(c.pH, 3), "buffer": c.buffer, "titrant": c.titrant, "titrant_conc_M": result.scenario.titrant_conc_M,
-        "masking": [{"agent": a, "conc_M": _r(d, 6)} for a, d in c.masking], "indicator": c.indicator, "mode": c.mode,
-        "back_metal": c.back_metal if c.mode == "back" else None,
+        "masking": [{"agent": a, "conc_M": _r(d, 6)} for a, d in c.masking], "indicator": c.indicator,
+        **strategy(c.mode).json_fields(c),  # "mode", "back_metal"
         "predicted_error_percent": _r(e.error_percent), "selectivity_margin_log": _r(e.margin, 3),
         "endpoint_sharpness_mL": _r(e.sharpness_mL), "hazard": HAZARD_NAMES[e.hazard], "strategy": strategy_of(e),
         "precipitates": sorted(set(t.precipitates_start) | set(t.precipitates_end)) if t is not None else [],

@@ -6,6 +6,7 @@ import re
 import pytest
 
 from optimiser import report
+from optimiser.analysis import analyse
 from optimiser.report import FIGURES, SECTIONS, fmt, signed
 from optimiser.results import dumps, to_json
 from optimiser.scenario import parse
@@ -104,7 +105,7 @@ search:
 """, "cn.yaml")
     r = run_search(sc, seed=1, pop_size=16, n_gen=6, with_robustness=False)
     assert any(a == "cyanide" for a, _ in r.recommended.candidate.masking)
-    html = report.render(r)
+    html = report.render(analyse(r))
     safety = html.split('<section id="safety">')[1].split("</section>")[0]
     assert "never add acid" in safety.lower() and "safety data sheet" in safety and "safety officer" in safety
     assert "fume hood" in safety
@@ -127,7 +128,7 @@ search:
   back_metals: [Zn]
 """, "al.yaml")
     r = run_search(sc, seed=1, pop_size=12, n_gen=4, with_robustness=False)
-    steps = report.method_summary(r, r.recommended, r.recommended_titration)["procedure"]
+    steps = analyse(r).method.procedure
     excess = next(k for k, x in enumerate(steps) if "(an excess)" in x)
     buffer = next(k for k, x in enumerate(steps) if x.startswith("Buffer"))
     titrate = next(k for k, x in enumerate(steps) if "Zn standard" in x)

@@ -1,11 +1,13 @@
 """Report figures as inline SVG (matplotlib, Agg backend), readable in greyscale.
 
-Each metal keeps one line style and marker in every figure, so the figures read without colour.
+Each metal keeps one line style and marker in every figure, so the figures read without colour. Each figure draws
+an :class:`optimiser.analysis.Analysis`: the arrays of its search result, and the analysis's own tables and labels.
 """
 from __future__ import annotations
 
 import io
 import re
+from typing import TYPE_CHECKING
 
 import matplotlib
 import matplotlib.ticker
@@ -14,7 +16,8 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-from ..search import SearchResult  # noqa: E402
+if TYPE_CHECKING:  # pragma: no cover
+    from ..analysis import Analysis
 
 STYLES = [("-", "o"), ("--", "s"), ("-.", "^"), (":", "D"), ((0, (5, 1, 1, 1)), "v"), ((0, (1, 1)), "P"), ((0, (8, 2)), "X")]
 COLOURS = ["#1b4f72", "#a04000", "#196f3d", "#6c3483", "#7b7d7d", "#b7950b", "#922b21"]
@@ -42,16 +45,12 @@ def _svg(fig) -> str:
     return text
 
 
-def metal_order(result: SearchResult) -> list[str]:
-    s = result.scenario.sample
-    return list(s.analyte) + [m for m in s.metals if m not in s.analyte]
-
-
-def conditional_figure(result: SearchResult) -> str:
+def conditional_figure(analysis: Analysis) -> str:
+    result = analysis.result
     cc = result.conditional
     pH = cc["pH"]
     fig, ax = plt.subplots(figsize=(6.4, 3.6))
-    for i, m in enumerate(metal_order(result)):
+    for i, m in enumerate(analysis.metals):
         st = _style(i)
         role = "analyte" if m in result.scenario.sample.analyte else "interferent"
         ax.plot(pH, cc[m], label=f"{m} ({role}), with the method's ligands", **st)
@@ -61,13 +60,13 @@ def conditional_figure(result: SearchResult) -> str:
         ax.axvline(result.recommended.candidate.pH, color="black", lw=1)
         ax.annotate("recommended pH", (result.recommended.candidate.pH, ax.get_ylim()[1]), ha="left", va="top", fontsize=8)
     ax.set_xlabel("pH")
-    titrant = result.recommended.candidate.titrant if result.recommended else "EDTA"
-    ax.set_ylabel(f"log K' (conditional, {titrant}) / log(L/mol)")
+    ax.set_ylabel(f"log K' (conditional, {analysis.log_K_table.titrant}) / log(L/mol)")
     ax.legend(fontsize=7, ncol=2, loc="lower right")
     return _svg(fig)
 
 
-def pareto_figure(result: SearchResult) -> str:
+def pareto_figure(analysis: Analysis) -> str:
+    result = analysis.result
     objs = list(result.objectives)
     labels = {"error": "|error| / %", "selectivity": "-(selectivity margin) / log units", "sharpness": "sharpness / mL",
               "hazard": "hazard level (0-4)", "complexity": "bench complexity"}
@@ -92,10 +91,10 @@ def pareto_figure(result: SearchResult) -> str:
     return _svg(fig)
 
 
-def titration_figure(result: SearchResult) -> str:
-    t = result.recommended_titration
+def titration_figure(analysis: Analysis) -> str:
+    t = analysis.result.recommended_titration
     fig, ax = plt.subplots(figsize=(6.4, 3.8))
-    order = [m for m in metal_order(result) if m in t.pM] + [m for m in t.pM if m not in metal_order(result)]
+    order = [m for m in analysis.metals if m in t.pM] + [m for m in t.pM if m not in analysis.metals]
     for i, m in enumerate(order):
         ax.plot(t.volume_mL, t.pM[m], label=f"p{m}", **_style(i))
     lo_hi = None
@@ -110,8 +109,7 @@ def titration_figure(result: SearchResult) -> str:
     ax2.set_ylabel("indicator turned / %")
     ax2.set_ylim(-5, 105)
     ax2.grid(False)
-    back = t.method.mode == "back"
-    ax.set_xlabel(("back-titrant (" + t.method.back_metal + ")" if back else "titrant (" + t.method.titrant + ")") + " volume / mL")
+    ax.set_xlabel(analysis.volume_label)
     ax.set_ylabel("pM = -log10 [M] (free metal ion)")
     h1, l1 = ax.get_legend_handles_labels()
     h2, l2 = ax2.get_legend_handles_labels()
@@ -119,22 +117,16 @@ def titration_figure(result: SearchResult) -> str:
     return _svg(fig)
 
 
-CATEGORIES = ["free", "bound to titrant", "bound to indicator", "masked", "bound to buffer ligand", "hydroxo complexes", "solid"]
 HATCHES = ["", "///", "...", "xx", "\\\\", "--", "oo"]
 
 
-def speciation_figure(result: SearchResult) -> str:
-    t = result.recommended_titration
-    rows = []
-    for when, spec in (("start", t.speciation_start), ("end point", t.speciation_end)):
-        for m in metal_order(result):
-            if m in spec:
-                rows.append((f"{m}, {when}", spec[m]))
+def speciation_figure(analysis: Analysis) -> str:
+    rows = [(r.label, r.shares) for r in analysis.speciation]
     fig, ax = plt.subplots(figsize=(6.4, 0.35 * len(rows) + 1.2))
     y = np.arange(len(rows))
     left = np.zeros(len(rows))
     greys = ["#ffffff", "#1b4f72", "#a04000", "#196f3d", "#b7950b", "#7b7d7d", "#000000"]
-    for k, cat in enumerate(CATEGORIES):
+    for k, cat in enumerate(analysis.categories):
         vals = np.array([r[1].get(cat, 0.0) for r in rows]) * 100
         ax.barh(y, vals, left=left, color=greys[k], edgecolor="black", hatch=HATCHES[k], label=cat, linewidth=0.5)
         left += vals
@@ -147,7 +139,8 @@ def speciation_figure(result: SearchResult) -> str:
     return _svg(fig)
 
 
-def robustness_figure(result: SearchResult) -> str:
+def robustness_figure(analysis: Analysis) -> str:
+    result = analysis.result
     target = result.scenario.targets.max_error_percent
     n = 1 + len(result.robustness_dose_scan)
     fig, axes = plt.subplots(1, n, figsize=(3.4 * n, 2.8), squeeze=False)

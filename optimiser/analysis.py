@@ -1,0 +1,402 @@
+"""What a report shows, computed once after the search, as plain data.
+
+:func:`analyse` reads a :class:`~optimiser.search.SearchResult` and the chemistry modules and returns an
+:class:`Analysis`: the bench procedure (:mod:`optimiser.procedure`), the criteria, the conditional-constant table,
+the alternatives and their trade-offs, the curve and speciation tables, the safety list, the constants used and the
+edges of the robustness windows. A report format (:mod:`optimiser.report`) only renders it.
+
+One definition of log(c K') serves both the analyte's feasibility and the selectivity margin: c is the metal's
+analytical concentration in the aliquot as pipetted, before any titrant dilutes it (the definition the search's
+margin uses, :func:`analyte_feasibility`).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import yaml
+
+from .conditional import Conditions, conditional_constant, feasibility
+from .constants import database
+from .errors import MissingConstantError
+from .method import Method
+from .procedure import BenchMethod, bench_method
+from .readout import CATEGORIES, GRADUAL_DROPS
+from .reagents import HAZARD_NAMES
+from .scenario import Scenario
+from .search import Evaluation, SearchResult
+from .strategies import strategy
+from .titration import Titration
+
+TABLE_PH = (4.0, 6.0, 8.0, 10.0, 12.0)  # pH columns of the conditional-constant table (the method's pH is added)
+FEASIBLE_LOG_CK = 6.0  # Ringbom: about 0.1 % at dpM +/- 0.2 (textbook threshold)
+MARGIN_NEEDED = 4.0  # about 1 % (common practice; 5 for about 0.3 %)
+ALTERNATIVES_PER_STRATEGY = 4
+
+
+@dataclass(frozen=True)
+class Criterion:
+    name: str
+    need: str
+    value: str
+    met: bool
+
+
+@dataclass(frozen=True)
+class LogKRow:
+    metal: str
+    role: str  # "analyte" or "interferent"
+    conc_mM: float
+    log_K: tuple[float | None, ...]  # one per pH of the table; None where a constant is missing
+
+
+@dataclass(frozen=True)
+class LogKTable:
+    titrant: str
+    pH: tuple[float, ...]
+    rows: tuple[LogKRow, ...]
+
+
+@dataclass(frozen=True)
+class AlternativeRow:
+    strategy: str
+    pH: float
+    buffer: str
+    titrant: str
+    masking: str
+    indicator: str
+    mode: str
+    error: float | None
+    margin: float | None
+    sharpness: float | None
+    hazard: str
+    tradeoff: str
+
+
+@dataclass(frozen=True)
+class CurveRow:
+    """pM at the equivalence and end points; the fraction of an interferent bound to the titrant at the end point."""
+
+    metal: str
+    pM_eq: float
+    pM_ep: float | None
+    cotitrated: float | None
+    is_analyte: bool
+
+
+@dataclass(frozen=True)
+class SpeciationRow:
+    label: str  # "Zn, start"
+    shares: dict[str, float]  # category -> fraction of the metal
+
+
+@dataclass(frozen=True)
+class SafetyItem:
+    name: str
+    hazard: str
+    cautions: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class ConstantRow:
+    reaction: str
+    log_K: float
+    temperature_C: float
+    ionic_strength_M: float
+    medium: str
+    dH_kJ_mol: float | None
+    citation: str
+    from_memory: bool
+    note: str
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """Everything a report shows (plain data), and the result itself for the figures."""
+
+    result: SearchResult
+    scenario: Scenario
+    metals: tuple[str, ...]  # analytes first, then interferents: one order for every table and figure
+    method: BenchMethod | None
+    criteria: tuple[Criterion, ...]
+    log_K_table: LogKTable
+    alternatives: tuple[AlternativeRow, ...]
+    curve: tuple[CurveRow, ...]
+    speciation: tuple[SpeciationRow, ...]
+    categories: tuple[str, ...]
+    assumptions: tuple[str, ...]
+    uncorrected_constants: int  # constants with no enthalpy, kept at their own temperature
+    masked_by_assumption: tuple[str, ...]
+    safety: tuple[SafetyItem, ...]
+    constants: tuple[ConstantRow, ...]
+    robustness_edges: tuple[str, ...]
+    volume_name: str  # the curve's volume axis: "titrant", "back-titrant"
+    volume_label: str  # its axis label
+    robust_pH: tuple[float, float] | None
+    robust_dose: dict[str, tuple[float, float]]
+    pH_drift: float | None
+    mass_balance_error: float | None
+    curve_points: int
+    scenario_text: str
+
+
+def metal_order(scenario: Scenario) -> tuple[str, ...]:
+    s = scenario.sample
+    return tuple(s.analyte) + tuple(m for m in s.metals if m not in s.analyte)
+
+
+def _conditions(scenario: Scenario) -> Conditions:
+    return Conditions(scenario.sample.ionic_strength_M, scenario.sample.temperature_C)
+
+
+def analyte_feasibility(scenario: Scenario, method: Method) -> float:
+    """log(c K') of the analyte, the weakest member of an analyte group (all of it must titrate).
+
+    c is the analyte's concentration in the aliquot as pipetted (not diluted to the end point), K' the conditional
+    constant at the method's pH with its buffer and masking ligands: the same term the selectivity margin starts
+    from, so that the feasibility shown and the margin shown share one definition.
+    """
+    s = scenario.sample
+    ligands = method.ligand_totals()
+    return min(float(feasibility(conditional_constant(a, method.titrant, method.pH, ligands, _conditions(scenario))
+                                 .log_K_conditional, s.metals[a])) for a in s.analyte)
+
+
+def criteria(scenario: Scenario, e: Evaluation, t: Titration) -> tuple[Criterion, ...]:
+    """The criteria a method is judged by, the value this method reaches and whether it meets each."""
+    method, ind = t.method, t.method.indicator_info
+    feas = analyte_feasibility(scenario, method)
+    target = scenario.targets.max_error_percent
+    return (
+        Criterion("Feasibility log(c K') of the analyte (Ringbom; c in the aliquot before titration)",
+                  f">= {FEASIBLE_LOG_CK:g} (about 0.1 % at dpM +/- 0.2)", _fmt(feas), feas >= FEASIBLE_LOG_CK),
+        Criterion("Selectivity margin delta log(cK') over the strongest interferent left in solution (same c)",
+                  f">= 5 for about 0.3 %, >= {MARGIN_NEEDED:g} for about 1 % (common practice)",
+                  "no interferent left in solution" if e.margin is None else _fmt(e.margin),
+                  e.margin is None or e.margin >= MARGIN_NEEDED),
+        Criterion("Predicted titration error", f"|error| <= {_fmt(target)} %", _signed(t.error_percent) + " %",
+                  t.error_percent is not None and abs(t.error_percent) <= target),
+        Criterion("End-point sharpness (10-90 % turned)", f"<= {GRADUAL_DROPS:g} drops (common practice)",
+                  f"{_fmt(t.sharpness_mL)} mL ({_fmt(t.sharpness_drops, 2)} drops)", not t.too_gradual),
+        Criterion(f"{ind.name} changes colour at this pH", f"pH {ind.usable_pH[0]:g}-{ind.usable_pH[1]:g}",
+                  f"pH {method.pH:.2f}", t.indicator_usable),
+        Criterion("Indicator not blocked", "blocking metals masked or absent", ", ".join(t.blocked_by) or "none",
+                  not t.blocked_by),
+        Criterion("Titre within the burette", f"<= {_fmt(scenario.burette_mL)} mL", f"{_fmt(t.titre_mL, 4)} mL",
+                  t.titre_mL <= scenario.burette_mL),
+    )
+
+
+def _fmt(x: float | None, sig: int = 3) -> str:
+    if x is None or not math.isfinite(x):
+        return "-"
+    if abs(x) < 1e-9:
+        return "0"
+    return f"{x:.{sig}g}" if abs(x) < 10 ** sig else f"{x:.0f}"
+
+
+def _signed(x: float | None) -> str:
+    return "-" if x is None else ("+" if x > 0 else "") + _fmt(x)
+
+
+def log_K_table(result: SearchResult) -> LogKTable:
+    """log K' of every metal at a few pH values and at the method's pH, with the method's ligands."""
+    sc, t = result.scenario, result.recommended_titration
+    method = t.method if t is not None else None
+    pHs = tuple(sorted(set(TABLE_PH) | ({round(method.pH, 2)} if method else set())))
+    titrant = method.titrant if method else "EDTA"
+    ligands = method.ligand_totals() if method else {}
+    rows = []
+    for metal in metal_order(sc):
+        try:
+            vals = tuple(conditional_constant(metal, titrant, pHs, ligands, _conditions(sc)).log_K_conditional.tolist())
+        except MissingConstantError:
+            vals = (None,) * len(pHs)
+        rows.append(LogKRow(metal, "analyte" if metal in sc.sample.analyte else "interferent", sc.sample.metals[metal] * 1000,
+                            vals))
+    return LogKTable(titrant, pHs, tuple(rows))
+
+
+def _difference_in_figures(e: Evaluation, rec: Evaluation) -> list[str]:
+    parts = []
+    if e.error_percent is not None and rec.error_percent is not None:
+        d = abs(e.error_percent) - abs(rec.error_percent)
+        parts.append(f"{'smaller' if d < 0 else 'larger'} error by {abs(d):.2g} %")
+    if e.margin is not None and rec.margin is not None and abs(e.margin - rec.margin) > 0.05:
+        parts.append(f"margin {'+' if e.margin > rec.margin else ''}{e.margin - rec.margin:.1f} log units")
+    if e.sharpness_mL is not None and rec.sharpness_mL is not None and abs(e.sharpness_mL - rec.sharpness_mL) > 0.005:
+        parts.append(f"{'sharper' if e.sharpness_mL < rec.sharpness_mL else 'more gradual'} end point")
+    return parts
+
+
+def _difference_in_bench(e: Evaluation, rec: Evaluation) -> list[str]:
+    parts = []
+    if e.hazard != rec.hazard:
+        parts.append(f"hazard {HAZARD_NAMES[e.hazard]} instead of {HAZARD_NAMES[rec.hazard]}")
+    extra = len(e.candidate.masking) - len(rec.candidate.masking)
+    if extra:
+        parts.append(f"{'one more' if extra == 1 else 'one fewer' if extra == -1 else str(extra)} masking agent")
+    if e.violations:
+        parts.append("not feasible: " + "; ".join(e.violations))
+    return parts
+
+
+def tradeoff(e: Evaluation, rec: Evaluation | None) -> str:
+    """What an alternative gains and costs against the recommendation, in a few words."""
+    if rec is None:
+        return "; ".join(e.violations) or "feasible"
+    if e.candidate == rec.candidate:
+        return "the recommendation"
+    return "; ".join(_difference_in_figures(e, rec) + _difference_in_bench(e, rec)) or "similar"
+
+
+def _mode_text(candidate: Any) -> str:
+    s = strategy(candidate.mode)
+    variant = s.variant(candidate)
+    return s.id + (f" ({variant})" if variant else "")
+
+
+def alternatives(result: SearchResult) -> tuple[AlternativeRow, ...]:
+    """The best few Pareto members of each strategy, with what each gains and costs."""
+    rec = result.recommended
+    by_strategy: dict[str, list[Evaluation]] = {}
+    for a in result.front:
+        by_strategy.setdefault(a.strategy, []).append(a.evaluation)
+    rows = []
+    for strat, evals in sorted(by_strategy.items()):
+        for e in sorted(evals, key=lambda e: e.F)[:ALTERNATIVES_PER_STRATEGY]:
+            c = e.candidate
+            rows.append(AlternativeRow(
+                strategy=strat, pH=c.pH, buffer=c.buffer, titrant=c.titrant,
+                masking=", ".join(f"{a} {d * 1000:.3g} mM" for a, d in c.masking), indicator=c.indicator,
+                mode=_mode_text(c), error=e.error_percent, margin=e.margin, sharpness=e.sharpness_mL,
+                hazard=HAZARD_NAMES[e.hazard], tradeoff=tradeoff(e, rec)))
+    return tuple(rows)
+
+
+def curve_rows(scenario: Scenario, t: Titration) -> tuple[CurveRow, ...]:
+    return tuple(CurveRow(m, v, t.pM_ep.get(m), t.cotitrated.get(m), m in scenario.sample.analyte) for m, v in t.pM_eq.items())
+
+
+def speciation_rows(scenario: Scenario, t: Titration) -> tuple[SpeciationRow, ...]:
+    """Where each metal is at the start and at the end point, analytes first."""
+    rows = []
+    for when, spec in (("start", t.speciation_start), ("end point", t.speciation_end)):
+        rows += [SpeciationRow(f"{m}, {when}", dict(spec[m])) for m in metal_order(scenario) if m in spec]
+    return tuple(rows)
+
+
+def acid_cyanide_caution(method: Method) -> SafetyItem | None:
+    """The caution against acid wherever cyanide masks in a method not run in strong alkali.
+
+    The one rule about a named reagent left in code; it moves into the reagent data.
+    """
+    if method.buffer != "NaOH" and any(a == "cyanide" for a, _ in method.masking):
+        return SafetyItem("acid and cyanide", HAZARD_NAMES[4],
+                          ("Never bring an acid near a cyanide-containing solution or its waste.",))
+    return None
+
+
+def safety(method: Method | None) -> tuple[SafetyItem, ...]:
+    """Each reagent's hazard class and the cautions its data entry gives (the report adds that these defer to the
+    safety data sheet, local regulations and the safety officer)."""
+    if method is None:
+        return ()
+    reagents = [method.buffer_info, *method.masking_agents, method.titrant_info]
+    items = [SafetyItem(r.name, HAZARD_NAMES[r.hazard], tuple(r.cautions)) for r in reagents]
+    extra = acid_cyanide_caution(method)
+    return tuple(items + ([extra] if extra else []))
+
+
+def constants_table(t: Titration | None, temperature_C: float) -> tuple[ConstantRow, ...]:
+    """Every constant the recommended curve used (once per species), with its conditions and full citation."""
+    if t is None:
+        return ()
+    db = database()
+    seen, rows = set(), []
+    for k in t.constants_used:
+        if k.species in seen:
+            continue
+        seen.add(k.species)
+        note = k.note
+        if k.dH_kJ_mol is None and abs(k.temperature_C - temperature_C) > 1e-9:
+            note = (note + "; " if note else "") + f"no enthalpy: kept at its {k.temperature_C:g} degC value"
+        rows.append(ConstantRow(k.reaction, k.log_K, k.temperature_C, k.ionic_strength_M, k.medium, k.dH_kJ_mol,
+                                db.references[k.ref]["citation"], k.from_memory, note))
+    return tuple(rows)
+
+
+def _ends(lo: float, hi: float, grid_lo: float, grid_hi: float, close) -> list[str]:
+    return [name for name, v, g in (("low", lo, grid_lo), ("high", hi, grid_hi)) if close(v, g)]
+
+
+def robustness_edges(result: SearchResult) -> tuple[str, ...]:
+    """Which ends of the robustness windows are the scan's own limits (the true window is wider there)."""
+    out = []
+    if result.robust_pH and result.robustness_pH_scan is not None:
+        grid = result.robustness_pH_scan[0]
+        ends = _ends(*result.robust_pH, grid[0], grid[-1], lambda v, g: abs(v - g) < 1e-9)
+        if ends:
+            out.append(f"the pH window reaches the end of the scan (one pH unit, within the buffer's working range) at its "
+                       f"{' and '.join(ends)} side")
+    for a, (lo, hi) in result.robust_dose.items():
+        dose = result.robustness_dose_scan[a][0]
+        ends = _ends(lo, hi, dose[0], dose[-1], lambda v, g: abs(v / g - 1) < 1e-9)
+        if ends:
+            out.append(f"the {a} window reaches the practical dose range at its {' and '.join(ends)} end")
+    return tuple(out)
+
+
+def _titration_facts(sc: Scenario, t: Titration | None) -> dict[str, Any]:
+    """The parts of the analysis read from the recommended titration (empty where there is none)."""
+    if t is None:
+        return {"curve": (), "speciation": (), "assumptions": (), "uncorrected_constants": 0, "masked_by_assumption": (),
+                "volume_name": "titrant", "volume_label": "volume / mL", "pH_drift": None, "mass_balance_error": None,
+                "curve_points": 0}
+    T = sc.sample.temperature_C
+    return {
+        "curve": curve_rows(sc, t), "speciation": speciation_rows(sc, t), "assumptions": tuple(t.assumptions),
+        "uncorrected_constants": sum(1 for k in t.constants_used if k.dH_kJ_mol is None and abs(k.temperature_C - T) > 1e-9),
+        "masked_by_assumption": tuple(sorted(t.masked_by_assumption)), "volume_name": t.method.strategy.volume_name,
+        "volume_label": t.method.strategy.volume_label(t.method), "pH_drift": t.pH_drift,
+        "mass_balance_error": t.mass_balance_error, "curve_points": len(t.volume_mL)}
+
+
+def analyse(result: SearchResult) -> Analysis:
+    """Everything the report shows, computed once from the search result."""
+    sc, e, t = result.scenario, result.recommended, result.recommended_titration
+    has_method = e is not None and t is not None
+    return Analysis(
+        result=result, scenario=sc, metals=metal_order(sc),
+        method=bench_method(sc, t.method, t, e.margin) if has_method else None,
+        criteria=criteria(sc, e, t) if has_method else (), log_K_table=log_K_table(result),
+        alternatives=alternatives(result), categories=CATEGORIES, safety=safety(t.method if has_method else None),
+        constants=constants_table(t, sc.sample.temperature_C), robustness_edges=robustness_edges(result),
+        robust_pH=tuple(result.robust_pH) if result.robust_pH else None, robust_dose=dict(result.robust_dose),
+        scenario_text=yaml.safe_dump(dict(sc.as_read), sort_keys=False, allow_unicode=True),
+        **_titration_facts(sc, t))
+
+
+__all__ = [
+    "AlternativeRow",
+    "Analysis",
+    "ConstantRow",
+    "Criterion",
+    "CurveRow",
+    "LogKRow",
+    "LogKTable",
+    "SafetyItem",
+    "SpeciationRow",
+    "acid_cyanide_caution",
+    "alternatives",
+    "analyse",
+    "analyte_feasibility",
+    "constants_table",
+    "criteria",
+    "log_K_table",
+    "metal_order",
+    "robustness_edges",
+    "safety",
+    "tradeoff",
+]
