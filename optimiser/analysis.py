@@ -23,7 +23,7 @@ from .errors import MissingConstantError
 from .method import Method
 from .procedure import BenchMethod, bench_method
 from .readout import CATEGORIES, GRADUAL_DROPS
-from .reagents import HAZARD_NAMES
+from .reagents import HAZARD_NAMES, catalogue
 from .scenario import Scenario
 from .search import Evaluation, SearchResult
 from .strategies import strategy
@@ -287,17 +287,6 @@ def speciation_rows(scenario: Scenario, t: Titration) -> tuple[SpeciationRow, ..
     return tuple(rows)
 
 
-def acid_cyanide_caution(method: Method) -> SafetyItem | None:
-    """The caution against acid wherever cyanide masks in a method not run in strong alkali.
-
-    The one rule about a named reagent left in code; it moves into the reagent data.
-    """
-    if method.buffer != "NaOH" and any(a == "cyanide" for a, _ in method.masking):
-        return SafetyItem("acid and cyanide", HAZARD_NAMES[4],
-                          ("Never bring an acid near a cyanide-containing solution or its waste.",))
-    return None
-
-
 def safety(method: Method | None) -> tuple[SafetyItem, ...]:
     """Each reagent's hazard class and the cautions its data entry gives (the report adds that these defer to the
     safety data sheet, local regulations and the safety officer)."""
@@ -305,8 +294,10 @@ def safety(method: Method | None) -> tuple[SafetyItem, ...]:
         return ()
     reagents = [method.buffer_info, *method.masking_agents, method.titrant_info]
     items = [SafetyItem(r.name, HAZARD_NAMES[r.hazard], tuple(r.cautions)) for r in reagents]
-    extra = acid_cyanide_caution(method)
-    return tuple(items + ([extra] if extra else []))
+    ids = [method.buffer, method.titrant, method.indicator, *(a for a, _ in method.masking)]
+    items += [SafetyItem(rule.name, HAZARD_NAMES[rule.hazard], tuple(rule.cautions))
+              for rule in catalogue().safety_rules_for(ids)]  # rules on combinations of reagents (reagents.yaml)
+    return tuple(items)
 
 
 def constants_table(t: Titration | None, temperature_C: float) -> tuple[ConstantRow, ...]:
@@ -388,7 +379,6 @@ __all__ = [
     "LogKTable",
     "SafetyItem",
     "SpeciationRow",
-    "acid_cyanide_caution",
     "alternatives",
     "analyse",
     "analyte_feasibility",

@@ -15,6 +15,7 @@ import numpy as np
 
 from . import __version__
 from .errors import InputError, OptimiserError
+from .strategies import strategy_ids
 
 PROG = "optimiser"
 
@@ -76,8 +77,9 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--indicator", required=True)
     s.add_argument("--masking", action="append", default=[], metavar="NAME=CONC")
     s.add_argument("--buffer", metavar="NAME[=CONC]", help="buffer and its total ligand concentration (default: one that holds the pH)")
-    s.add_argument("--mode", default="direct", choices=("direct", "back"))
-    s.add_argument("--back-metal", default="Zn", choices=("Zn", "Mg"))
+    s.add_argument("--mode", default="direct", choices=strategy_ids(), help="how the titration is run")
+    s.add_argument("--back-metal", default="Zn", metavar="METAL",
+                   help="the back-titration standard (one of the standards in the data: Zn, Mg)")
     s.add_argument("--titrant-conc", metavar="M", help="override the scenario's titrant concentration")
     s.add_argument("--json", action="store_true")
 

@@ -72,24 +72,18 @@ def formula_text(formula: str) -> str:
     return re.sub(r"\(H2O\)(\d*)$", lambda m: f"·{m.group(1)}H2O", formula)
 
 
-def recipe_kind(buffer: Buffer) -> str:
-    """How a buffer is made up, from what its data entry declares (never from its id).
+_KINDS = {  # the data's recipe kinds (reagents.yaml, ``recipe.kind``) -> the recipe writers below
+    "salt_plus_base_solution": ACID_SALT_AND_BASE_SOLUTION,
+    "salt_plus_acid_solution": BASE_SALT_AND_ACID_SOLUTION,
+    "base_plus_acid_solution": BASE_AND_STRONG_ACID,
+    "strong_base": STRONG_BASE,
+    "strong_acid": STRONG_ACID,
+}
 
-    The one place that decides it: re-point it at an explicit ``recipe:`` field of the data when there is one.
-    A ligand's acid form declared as a salt (``acid_formula``) with the base as a solution (``base_solution``) is
-    an ammonia-type buffer. A base form declared as a salt (``base_formula``) with an acid solution is either a
-    salt of an anionic base with its own acid (acetate: the anion comes with a cation, its acid is neutral) or a
-    neutral base that a strong acid partly protonates (hexamine: its acid form is a cation, which needs the strong
-    acid's anion); the ligand's charge tells which. Without a ligand, the pH is set with a strong base or acid.
-    """
-    raw = buffer.raw
-    if buffer.ligand is None:
-        return STRONG_BASE if "base_solution" in raw else STRONG_ACID if "acid_solution" in raw else PH_METER_ONLY
-    if "acid_formula" in raw and "base_solution" in raw:
-        return ACID_SALT_AND_BASE_SOLUTION
-    if "base_formula" in raw and "acid_solution" in raw:
-        return BASE_SALT_AND_ACID_SOLUTION if database().charges[buffer.ligand] < 0 else BASE_AND_STRONG_ACID
-    return PH_METER_ONLY
+
+def recipe_kind(buffer: Buffer) -> str:
+    """How a buffer is made up: its data entry's ``recipe.kind`` (never its id)."""
+    return _KINDS.get(buffer.recipe.kind, PH_METER_ONLY)
 
 
 @dataclass(frozen=True)

@@ -38,7 +38,7 @@ def test_recipe_kind_of_each_buffer(buffer, kind):
 def test_recipe_kind_does_not_read_the_id(buffer):
     """The same entry under another id is made up the same way."""
     b = catalogue().buffer(buffer)
-    renamed = dataclasses.replace(b, id="renamed", raw={**b.raw, "id": "renamed"})
+    renamed = dataclasses.replace(b, id="renamed")
     assert recipe_kind(renamed) == recipe_kind(b)
 
 

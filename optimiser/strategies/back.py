@@ -10,7 +10,6 @@ import numpy as np
 
 from .. import findings as fd
 from ..errors import InputError
-from ..equilibrium import solve
 from ..reagents import catalogue
 from .base import Array, Plan, Strategy, budget_parts, indicator_bound
 
@@ -56,6 +55,8 @@ class BackTitration(Strategy):
         plan.V_hi = max(1.8 * VB_eq, (cT * V_x) / cB * 1.1)
         inert = np.zeros(len(comps))
         if plan.slow:
+            from ..equilibrium import solve  # the compiled solver loads only when a curve is planned
+
             first = solve(system, plan.totals_before(np.array([V_x])), pH=method.pH,
                           ionic_strength_M=sample.ionic_strength_M, temperature_C=sample.temperature_C)
             for m in plan.slow:
