@@ -205,7 +205,7 @@ def log_K_table(result: SearchResult) -> LogKTable:
     sc, t = result.scenario, result.recommended_titration
     method = t.method if t is not None else None
     pHs = tuple(sorted(set(TABLE_PH) | ({round(method.pH, 2)} if method else set())))
-    titrant = method.titrant if method else "EDTA"
+    titrant = method.titrant if method else sc.search.titrants[0]  # as the search's log K' curves
     ligands = method.ligand_totals() if method else {}
     rows = []
     for metal in metal_order(sc):

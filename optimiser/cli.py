@@ -57,7 +57,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     c = sub.add_parser("conditional", help="log alpha and conditional constants of a metal across pH")
     c.add_argument("metal")
-    c.add_argument("--titrant", default="EDTA")
+    c.add_argument("--titrant", help="the titrant (default: the first in the data, EDTA)")
     c.add_argument("--pH", nargs="+", required=True, metavar="PH")
     c.add_argument("--ligand", action="append", default=[], metavar="NAME=CONC", help="total (analytical) ligand concentration, e.g. NH3=0.1M")
     c.add_argument("--ionic-strength", default="0.1", metavar="M")
@@ -116,6 +116,8 @@ def _conditional_inputs(a):
         if lig not in db.charges or lig in db.metals or lig == "H+":
             raise UnknownNameError("ligand", lig, [x for x in db.charges if x not in db.metals and x != "H+"])
     cond = Conditions(molarity(a.ionic_strength, "ionic strength"), temperature_C(a.temperature), a.pH_scale)
+    if a.titrant is None:
+        return metal, pH, ligands, cond, catalogue().default_ids("titrants")[0]
     try:  # a titrant of the catalogue in any case ("edta"); any other ligand as given
         titrant = catalogue().titrant(a.titrant).id
     except UnknownNameError:

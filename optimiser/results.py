@@ -67,7 +67,7 @@ def to_json(result: SearchResult) -> dict[str, Any]:
         "schema": SCHEMA_VERSION, "scenario": sc.name, "analyte": list(sc.sample.analyte), "seed": result.seed,
         "evaluations": result.evaluations, "wall_time_s": _r(result.wall_time_s, 2), "objectives": list(result.objectives),
         "recommended": rec, "rule": result.rule, "alternatives": alts,
-        "conditional_constants": {"titrant": result.recommended.candidate.titrant if result.recommended else "EDTA",
+        "conditional_constants": {"titrant": result.recommended.candidate.titrant if result.recommended else sc.search.titrants[0],
                                   "pH": [float(x) for x in cc["pH"]],
                                   **{m: [_r(v, 3) for v in cc[m]] for m in sc.sample.metals}},
         "notes": list(result.notes),
