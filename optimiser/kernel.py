@@ -466,9 +466,8 @@ def _pcf(nu, pt, state, work, sweeps):
 
 
 @njit(cache=True, inline="always")
-def _continuation_depth(hist, b):
+def _continuation_depth(chain, status, b):
     """How many previous solutions point b may be extrapolated from (0: it starts from its totals)."""
-    chain, status = hist.chain, hist.status
     if not (chain[b] and b > 0 and status[b - 1] == CONVERGED):
         return 0
     tries = 1
@@ -504,11 +503,8 @@ def _extrapolate(pt, free_col, x_prev, order, x):
 
 
 @njit(cache=True, inline="always")
-def _guess_closes(nu, pt, state, work):
-    """Whether the guess state.x closes every mass balance within GUESS_LIMIT (relative); its c left in state.c."""
-    T, act, S_pos = pt.totals, pt.present, work.S_pos
-    _concentrations(nu, state.K, state.x, act, state.c)
-    _balances(nu, state.c, S_pos, work.S_neg)
+def _guess_closes(T, act, S_pos):
+    """Whether a guess whose balance sums are S_pos closes every mass balance within GUESS_LIMIT (relative)."""
     for i in range(len(T)):
         if act[i] and T[i] > 0 and abs(S_pos[i] - T[i]) > GUESS_LIMIT * T[i]:
             return False
@@ -524,18 +520,20 @@ def _start_point(nu, free_col, pt, state, work, hist):
     factor of about 2; else the continued fractions from the totals. Returns whether state.c holds the
     concentrations at state.x (a guess kept).
     """
-    x, act = state.x, pt.present
-    tries = _continuation_depth(hist, pt.index)
+    x, c, act, T, S_pos = state.x, state.c, pt.present, pt.totals, work.S_pos
+    tries = _continuation_depth(hist.chain, hist.status, pt.index)
     kept = False
     for t in range(tries):
         if _extrapolate(pt, free_col, hist.x, tries - 1 - t, x):
             _pcf(nu, pt, state, work, PCF_GUESS)
-        kept = _guess_closes(nu, pt, state, work)
+        _concentrations(nu, state.K, x, act, c)
+        _balances(nu, c, S_pos, work.S_neg)
+        kept = _guess_closes(T, act, S_pos)
         if kept:
             break
     if not kept:
         for i in range(len(x)):
-            x[i] = _log_total(pt.totals, i, free_col) if act[i] else LOG_MIN
+            x[i] = _log_total(T, i, free_col) if act[i] else LOG_MIN
         _pcf(nu, pt, state, work, PCF_FRESH)
     for i in range(len(x)):
         if not act[i]:
@@ -708,10 +706,10 @@ def _solid_amounts(nu_s, sol, bal, work):
 
 
 @njit(cache=True, inline="always")
-def _residuals(nu, c, T, act, bal):
-    """Mass-balance residuals bal.R = nu^T c - T [mol/L] (0 for an absent component) and the sum of the
-    magnitudes of their terms, bal.scale."""
-    nu_ptr, nu_col, nu_val, R, scale = nu.ptr, nu.col, nu.val, bal.R, bal.scale
+def _residuals(nu, c, T, act, R, scale):
+    """Mass-balance residuals R = nu^T c - T [mol/L] (0 for an absent component) and the sum of the
+    magnitudes of their terms, scale."""
+    nu_ptr, nu_col, nu_val = nu.ptr, nu.col, nu.val
     R[:] = 0.0
     scale[:] = 0.0
     for sp in range(len(c)):
@@ -854,9 +852,8 @@ def _step_cap(dx):
 
 
 @njit(cache=True, inline="always")
-def _ratio_test(nu_s, sol, dx, alpha):
+def _ratio_test(nu_s, W, SI, dx, alpha):
     """The step length, at most alpha, at which the first inactive solid saturates: (alpha, that solid or -1)."""
-    W, SI = sol.W, sol.SI
     block = -1
     for p in range(len(W)):
         if not W[p]:
@@ -941,22 +938,22 @@ def _newton(nu, opts, pt, state, work, c_ready):
     f, or the capped Newton step where backtracking is exhausted. ``c_ready`` says that state.c already
     holds the concentrations at state.x. Returns (converged, iterations, largest relative mass-balance residual).
     """
-    nu_s, x, c, act = nu.solid, state.x, state.c, pt.present
+    nu_s, x, c, act, T = nu.solid, state.x, state.c, pt.present, pt.totals
     sol, bal, kkt, e = work.sol, work.bal, work.kkt, work.scratch.e
-    W, dx = sol.W, kkt.dx
+    W, SI, dx, R = sol.W, sol.SI, kkt.dx, bal.R
     worst = np.inf
     it = 0
     while it < opts.max_iter:
         it += 1
         if not c_ready:
             _concentrations(nu, state.K, x, act, c)
-        _residuals(nu, c, pt.totals, act, bal)
-        _saturation_indices(nu_s, state.Ks, x, sol.SI)
+        _residuals(nu, c, T, act, R, bal.scale)
+        _saturation_indices(nu_s, state.Ks, x, SI)
         # solid amounts from the mass balances (weighted least squares over the active solids): more
         # accurate than the KKT multipliers, which carry the conditioning of the scaled system
         _solid_amounts(nu_s, sol, bal, work.scratch)
         worst, closed = _balance_error(nu_s, sol, bal, pt, opts)
-        over, consistent = _solid_check(W, sol.SI)
+        over, consistent = _solid_check(W, SI)
         if worst <= opts.tol and over >= 0:  # balances closed with a solid supersaturated: it precipitates
             W[over] = True
         if closed and consistent and not _dissolve_negative(W, sol.s) and worst <= opts.tol:
@@ -964,8 +961,8 @@ def _newton(nu, opts, pt, state, work, c_ready):
         _jacobian(nu, c, kkt.J)
         _newton_direction(nu_s, act, sol, bal, kkt)
         cap = _step_cap(dx)
-        alpha, block = _ratio_test(nu_s, sol, dx, cap)
-        slope = _slope(bal.R, dx, act)
+        alpha, block = _ratio_test(nu_s, W, SI, dx, cap)
+        slope = _slope(R, dx, act)
         c_ready = False
         if worst >= 1e-5 and slope < 0:
             accepted, alpha, halved = _armijo(nu, pt, c, e, dx, alpha, slope)
