@@ -276,6 +276,8 @@ def solve(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None = None
         [degC].
     pH_scale : str
         ``"activity"`` (-log a(H+), default) or ``"concentration"``.
+    background_ionic_strength_M : array_like
+        The background electrolyte's share of a computed ionic strength [mol/L].
     A : array_like, optional
         Davies A to use instead of the one computed from the temperature.
     log_Kw_shift : array_like, shape (B,) or scalar
@@ -288,65 +290,26 @@ def solve(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None = None
         Points that start afresh instead of from the previous point's solution (the first point of each
         curve in a batch of several curves). Default: the batch is one run, each point continues from the
         one before (continuation along a curve given in order).
+    tol : float
+        Relative mass-balance tolerance.
 
     Returns
     -------
     Equilibrium
+
+    Raises
+    ------
+    InputError
+        Totals of the wrong shape, negative or not finite; a pH outside 0-14; ``restart`` of the wrong shape.
+    ConvergenceError
+        At the first point that did not converge, named by ``point_labels``.
     """
-    T_tot = np.atleast_2d(np.asarray(totals, dtype=float))
-    B, C = T_tot.shape
-    if C != len(system.components):
-        raise InputError(f"totals need {len(system.components)} columns ({', '.join(system.components)}), got {C}")
-    iH = system.index(H)
-    mass_cols = [i for i in range(C) if i != iH]
-    if np.any(~np.isfinite(T_tot[:, mass_cols])) or np.any(T_tot[:, mass_cols] < 0):
-        raise InputError("totals must be finite and not negative")
-    free_pH = pH is None
-    temp = np.broadcast_to(np.asarray(temperature_C, dtype=float), (B,)).copy()
-    bg = np.broadcast_to(np.asarray(background_ionic_strength_M, dtype=float), (B,))
-    auto_I = ionic_strength_M is None
-    I = bg.copy() if auto_I else np.broadcast_to(np.asarray(ionic_strength_M, dtype=float), (B,)).copy()
-    pH_arr = None if free_pH else np.broadcast_to(np.asarray(pH, dtype=float), (B,)).copy()
-    if pH_arr is not None and (np.any(~np.isfinite(pH_arr)) or np.any(pH_arr < 0) or np.any(pH_arr > 14)):
-        raise InputError("pH must be between 0 and 14")
-    nu = system.nu.astype(float)
-    nu_s_all = system.nu_solid.astype(float)
-    P_used = nu_s_all.shape[0] if include_solids else 0
-    # water activity enters once per H2O consumed, i.e. once per H+ released (hydroxo species and solids)
-    shift_w = np.broadcast_to(np.asarray(log_Kw_shift, dtype=float), (B,))[:, None]
-    unknown = list(range(C)) if free_pH else mass_cols
-    A_T = davies_A(temp) if A is None else np.broadcast_to(np.asarray(A, dtype=float), (B,))
-    if restart is not None and np.shape(restart) not in ((), (B,)):
-        raise InputError(f"restart needs one flag per point ({B}), got shape {np.shape(restart)}")
-    chain = np.ones(B, dtype=bool) if restart is None else ~np.broadcast_to(np.asarray(restart, dtype=bool), (B,))
-    # constants at I = 0 (with the water-activity shift: once per H+ released by a hydroxo species or solid);
-    # the kernel moves them to each point's ionic strength and folds in a fixed pH
-    K0, Ks0 = system.log_K(np.zeros(B), temp, A)
-    K0 = K0 + np.maximum(-nu[:, iH], 0.0)[None, :] * shift_w
-    Ks0 = Ks0 + np.maximum(-nu_s_all[:, iH], 0.0)[None, :] * shift_w
-    dz2, dz2_s = system.charge_terms
-    hco = np.zeros(len(nu)) if free_pH else nu[:, iH].copy()
-    hco_s = np.zeros(len(nu_s_all)) if free_pH else nu_s_all[:, iH].copy()
-    pH_term = np.zeros(B) if free_pH else -pH_arr
-    activity = not free_pH and pH_scale == "activity"
-    x, solids_amt, active, c, I, iterations, resid = _run_kernel(
-        system, nu[:, unknown], nu_s_all[:P_used][:, unknown], K0, dz2, hco, Ks0[:, :P_used], dz2_s[:P_used],
-        hco_s[:P_used], A_T, pH_term, activity, T_tot[:, unknown], I, bg, auto_I, chain,
-        unknown.index(iH) if free_pH else None, tol, point_labels)
-    # the constants at the ionic strength reached, for the saturation indices of every solid (those not allowed
-    # too) and the pH when it is free
-    Af = (A_T * davies_f(I))[:, None]
-    log_cH = x[:, unknown.index(iH)] if free_pH else (pH_term + (Af[:, 0] if activity else 0.0))
-    if free_pH:
-        pH_arr = -log_cH if pH_scale == "concentration" else -(log_cH - Af[:, 0])
-    si = x @ nu_s_all[:, unknown].T + Ks0 + Af * dz2_s[None, :] + hco_s[None, :] * log_cH[:, None]
-    amounts = np.zeros((B, nu_s_all.shape[0]))
-    amounts[:, :P_used] = solids_amt
-    present = np.zeros_like(amounts, dtype=bool)
-    present[:, :P_used] = active
-    si = np.where(present, 0.0, si)
-    return Equilibrium(system=system, c=c, solid_amount=amounts, saturation_index=si, ionic_strength_M=I,
-                       pH=pH_arr, totals=T_tot, max_residual=resid, iterations=iterations)
+    options = _SolveOptions(pH_scale=pH_scale, background_ionic_strength_M=background_ionic_strength_M, A=A,
+                            log_Kw_shift=log_Kw_shift, include_solids=include_solids, restart=restart, tol=tol)
+    cond = _conditions(system, totals, pH, ionic_strength_M, temperature_C, options)
+    inputs = _kernel_inputs(system, cond)
+    out = _run_kernel(inputs.stoichiometry, inputs.points, inputs.options, point_labels)
+    return _equilibrium(system, cond, inputs, out)
 
 
 def warm_up() -> None:
@@ -354,49 +317,217 @@ def warm_up() -> None:
     solve(build_system(("Ca",), ("EDTA",)), [0.001, 0.001, 0.0], pH=10.0)
 
 
-def _run_kernel(system: ChemicalSystem, nu: Array, nu_s: Array, K0: Array, dz2: Array, hco: Array, Ks0: Array,
-                dz2_s: Array, hco_s: Array, A: Array, pH_term: Array, activity: bool, T: Array, I: Array, bg: Array,
-                auto_I: bool, chain: NDArray[np.bool_], free_pH_col: int | None, tol: float,
-                labels: Sequence[str] | None, max_iter: int = 300):
-    """Solve B points with the compiled kernel (:func:`optimiser.kernel.solve_points`, which documents the arrays).
+MAX_ITER = 300  # Newton iterations allowed per solve (per ionic-strength pass) at one point
 
-    Shapes: nu (S, n), nu_s (P, n), K0 (B, S), Ks0 (B, P), T (B, n). Points where ``chain`` is False start
-    from the totals (continued fractions), the others from the previous points' solutions.
+
+@dataclass(frozen=True)
+class _SolveOptions:
+    """The keyword options of :func:`solve`, as given (see there)."""
+
+    pH_scale: str = "activity"
+    background_ionic_strength_M: ArrayLike = 0.0
+    A: ArrayLike | None = None
+    log_Kw_shift: ArrayLike = 0.0
+    include_solids: bool = True
+    restart: ArrayLike | None = None
+    tol: float = REL_TOL
+
+
+@dataclass(frozen=True)
+class _Conditions:
+    """The inputs of a solve, checked and broadcast to its B points.
+
+    Attributes
+    ----------
+    totals : ndarray, shape (B, C)
+        [mol/L].
+    pH : ndarray, shape (B,), or None
+        The fixed pH, None where it is free.
+    ionic_strength_M : ndarray, shape (B,)
+        The fixed ionic strength, or where it is computed (``auto_I``) the background's, its start [mol/L].
+    auto_I : bool
+        The ionic strength is computed from the species.
+    background_M : ndarray, shape (B,)
+        The background electrolyte's share of a computed ionic strength [mol/L].
+    temperature_C : ndarray, shape (B,)
+        [degC].
+    davies_A : ndarray, shape (B,)
+        Davies A at each point (given, or from the temperature).
+    chain : ndarray of bool, shape (B,)
+        Points that continue from the previous one (not restarts).
+    options : _SolveOptions
+        The keyword options as given.
+    """
+
+    totals: Array
+    pH: Array | None
+    ionic_strength_M: Array
+    auto_I: bool
+    background_M: Array
+    temperature_C: Array
+    davies_A: Array
+    chain: NDArray[np.bool_]
+    options: _SolveOptions
+
+
+def _conditions(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None, ionic_strength_M: ArrayLike | None,
+                temperature_C: ArrayLike, options: _SolveOptions) -> _Conditions:
+    """Check the inputs of :func:`solve` and broadcast them to the B points (raises InputError)."""
+    T_tot = np.atleast_2d(np.asarray(totals, dtype=float))
+    B, C = T_tot.shape
+    if C != len(system.components):
+        raise InputError(f"totals need {len(system.components)} columns ({', '.join(system.components)}), got {C}")
+    mass_cols = [i for i in range(C) if i != system.index(H)]
+    if np.any(~np.isfinite(T_tot[:, mass_cols])) or np.any(T_tot[:, mass_cols] < 0):
+        raise InputError("totals must be finite and not negative")
+    temp = np.broadcast_to(np.asarray(temperature_C, dtype=float), (B,)).copy()
+    bg = np.broadcast_to(np.asarray(options.background_ionic_strength_M, dtype=float), (B,))
+    auto_I = ionic_strength_M is None
+    I = bg.copy() if auto_I else np.broadcast_to(np.asarray(ionic_strength_M, dtype=float), (B,)).copy()
+    pH_arr = None if pH is None else np.broadcast_to(np.asarray(pH, dtype=float), (B,)).copy()
+    if pH_arr is not None and (np.any(~np.isfinite(pH_arr)) or np.any(pH_arr < 0) or np.any(pH_arr > 14)):
+        raise InputError("pH must be between 0 and 14")
+    A_T = davies_A(temp) if options.A is None else np.broadcast_to(np.asarray(options.A, dtype=float), (B,))
+    restart = options.restart
+    if restart is not None and np.shape(restart) not in ((), (B,)):
+        raise InputError(f"restart needs one flag per point ({B}), got shape {np.shape(restart)}")
+    chain = np.ones(B, dtype=bool) if restart is None else ~np.broadcast_to(np.asarray(restart, dtype=bool), (B,))
+    return _Conditions(totals=T_tot, pH=pH_arr, ionic_strength_M=I, auto_I=auto_I, background_M=bg, temperature_C=temp,
+                       davies_A=A_T, chain=chain, options=options)
+
+
+@dataclass(frozen=True)
+class _KernelInputs:
+    """What :func:`solve` hands the kernel, and what it needs again for the saturation indices and the pH.
+
+    Attributes
+    ----------
+    stoichiometry, points, options
+        The kernel's inputs (:class:`optimiser.kernel.Stoichiometry`, :class:`~optimiser.kernel.Points`,
+        :class:`~optimiser.kernel.Options`), over the unknown components and the solids allowed.
+    unknown : list of int
+        The components solved for: all where the pH is free, all but H+ where it is fixed.
+    nu_solid : ndarray, shape (P_all, n)
+        Stoichiometry of every solid of the system (allowed or not) in the unknown components.
+    log_Ks0 : ndarray, shape (B, P_all)
+        log10 constants of every solid at I = 0 (water-activity shift included).
+    h_solid : ndarray, shape (P_all,)
+        Their H+ coefficients where the pH is fixed, zeros where it is free.
+    """
+
+    stoichiometry: kernel.Stoichiometry
+    points: kernel.Points
+    options: kernel.Options
+    unknown: list[int]
+    nu_solid: Array
+    log_Ks0: Array
+    h_solid: Array
+
+
+def _f64(a: ArrayLike) -> Array:
+    """float64, C-contiguous and writable, so that numba compiles one specialisation of the kernel only."""
+    return np.require(a, dtype=float, requirements=("C", "W"))
+
+
+def _kernel_inputs(system: ChemicalSystem, cond: _Conditions) -> _KernelInputs:
+    """The kernel's structures for a solve: constants at I = 0 per point, stoichiometry of the unknowns.
+
+    The constants at I = 0 carry the water-activity shift (once per H+ released by a hydroxo species or
+    solid); the kernel moves them to each point's ionic strength and folds in a fixed pH.
+    """
+    opts = cond.options
+    B, C = cond.totals.shape
+    iH = system.index(H)
+    free_pH = cond.pH is None
+    unknown = list(range(C)) if free_pH else [i for i in range(C) if i != iH]
+    nu = system.nu.astype(float)
+    nu_s_all = system.nu_solid.astype(float)
+    P = nu_s_all.shape[0] if opts.include_solids else 0
+    # water activity enters once per H2O consumed, i.e. once per H+ released (hydroxo species and solids)
+    shift_w = np.broadcast_to(np.asarray(opts.log_Kw_shift, dtype=float), (B,))[:, None]
+    K0, Ks0 = system.log_K(np.zeros(B), cond.temperature_C, opts.A)
+    K0 = K0 + np.maximum(-nu[:, iH], 0.0)[None, :] * shift_w
+    Ks0 = Ks0 + np.maximum(-nu_s_all[:, iH], 0.0)[None, :] * shift_w
+    dz2, dz2_s = system.charge_terms
+    hco = np.zeros(len(nu)) if free_pH else nu[:, iH].copy()
+    hco_s = np.zeros(len(nu_s_all)) if free_pH else nu_s_all[:, iH].copy()
+    nu_u, nu_s = nu[:, unknown], nu_s_all[:, unknown]
+    T = cond.totals[:, unknown]
+    present = np.ascontiguousarray(T > 0)
+    if free_pH:
+        present[:, unknown.index(iH)] = True
+    ptr, col, val = _csr(nu_u)
+    stoichiometry = kernel.Stoichiometry(
+        nu_ptr=ptr, nu_col=col, nu_val=val, nmax=np.maximum(np.where(nu_u > 0, nu_u, 0.0).max(axis=0, initial=0.0), 1.0),
+        nu_solid=_f64(nu_s[:P]), z2=system.charge_squared, dz2=_f64(dz2), dz2_solid=_f64(dz2_s[:P]), h=_f64(hco),
+        h_solid=_f64(hco_s[:P]))
+    points = kernel.Points(
+        log_K0=_f64(K0), log_Ks0=_f64(Ks0[:, :P]).reshape(B, P), davies_A=_f64(cond.davies_A),
+        pH_term=_f64(np.zeros(B) if free_pH else -cond.pH), totals=_f64(T), ionic_strength=_f64(cond.ionic_strength_M),
+        background_I=_f64(cond.background_M), present=present, chain=np.require(cond.chain, requirements=("C", "W")))
+    options = kernel.Options(activity=bool(not free_pH and opts.pH_scale == "activity"), auto_I=bool(cond.auto_I),
+                             I_tol=I_TOL, free_col=unknown.index(iH) if free_pH else -1, tol=float(opts.tol),
+                             max_iter=int(MAX_ITER))
+    return _KernelInputs(stoichiometry=stoichiometry, points=points, options=options, unknown=unknown, nu_solid=nu_s,
+                         log_Ks0=Ks0, h_solid=hco_s)
+
+
+def _run_kernel(stoichiometry: kernel.Stoichiometry, points: kernel.Points, options: kernel.Options,
+                labels: Sequence[str] | None) -> kernel.Outputs:
+    """Solve the B points with the compiled kernel (:func:`optimiser.kernel.solve_points`).
+
+    Parameters
+    ----------
+    stoichiometry, points, options
+        The kernel's inputs (their classes in :mod:`optimiser.kernel` document the arrays and units).
+    labels : sequence of str, optional
+        Names of the points for the error message.
 
     Returns
     -------
-    x, solid amounts, solids present, species concentrations, ionic strength, most iterations of any point,
-    largest residual
+    kernel.Outputs
+        Per point: log10 free concentrations of the unknown components, solid amounts [mol/L], solids present,
+        species concentrations [mol/L], ionic strength [mol/L], iterations, largest relative residual, status.
 
     Raises
     ------
     ConvergenceError
-        At the first point that did not converge, named by ``labels``.
+        At the first point that did not converge (or has a free concentration not finite), named by ``labels``.
     """
-    B, n = T.shape
-    S, P = nu.shape[0], nu_s.shape[0]
-    active_c = np.ascontiguousarray(T > 0)
-    if free_pH_col is not None:
-        active_c[:, free_pH_col] = True
-    ptr, col, val = _csr(nu)
-    nmax = np.maximum(np.where(nu > 0, nu, 0.0).max(axis=0, initial=0.0), 1.0)
-    x, s, c = np.empty((B, n)), np.empty((B, P)), np.empty((B, S))
-    W = np.empty((B, P), dtype=bool)
-    I_out, its, res, status = np.empty(B), np.empty(B, dtype=np.int64), np.empty(B), np.empty(B, dtype=np.int64)
-    def f64(a):  # float, C-contiguous and writable, so that numba compiles one specialisation only
-        return np.require(a, dtype=float, requirements=("C", "W"))
-    kernel.solve_points(ptr, col, val, nmax, f64(nu_s), system.charge_squared, f64(K0), f64(dz2), f64(hco),
-                        f64(Ks0).reshape(B, P), f64(dz2_s), f64(hco_s), f64(A), f64(pH_term), bool(activity),
-                        f64(T), f64(I), f64(bg), bool(auto_I), I_TOL, active_c,
-                        -1 if free_pH_col is None else int(free_pH_col), chain, float(tol), int(max_iter),
-                        x, s, W, c, I_out, its, res, status)
-    bad = (status != kernel.CONVERGED) | ~np.isfinite(x).all(axis=1)
+    B, n = points.totals.shape
+    out = kernel.empty_outputs(B, n, points.log_K0.shape[1], points.log_Ks0.shape[1])
+    kernel.solve_points(stoichiometry, points, options, out)
+    bad = (out.status != kernel.CONVERGED) | ~np.isfinite(out.x).all(axis=1)
     if bad.any():
         b = int(np.nonzero(bad)[0][0])
         label = labels[b] if labels is not None else f"point {b}"
-        raise ConvergenceError(f"equilibrium did not converge at {label} (of {B}) in {max_iter} iterations: largest relative "
-                               f"mass-balance residual {res[b]:.2e}, totals {T[b].tolist()}")
-    return x, s, W, c, I_out, int(its.max(initial=0)), float(res.max(initial=0.0))
+        raise ConvergenceError(f"equilibrium did not converge at {label} (of {B}) in {options.max_iter} iterations: "
+                               f"largest relative mass-balance residual {out.residual[b]:.2e}, totals "
+                               f"{points.totals[b].tolist()}")
+    return out
+
+
+def _equilibrium(system: ChemicalSystem, cond: _Conditions, inputs: _KernelInputs, out: kernel.Outputs) -> Equilibrium:
+    """The :class:`Equilibrium` from the kernel's outputs: the pH where it is free, and the saturation index of
+    every solid (those not allowed too) at the ionic strength reached."""
+    x, I, opts = out.x, out.ionic_strength, inputs.options
+    B = len(x)
+    Af = (cond.davies_A * davies_f(I))[:, None]
+    log_cH = x[:, opts.free_col] if cond.pH is None else (inputs.points.pH_term + (Af[:, 0] if opts.activity else 0.0))
+    pH_arr = cond.pH
+    if cond.pH is None:
+        pH_arr = -log_cH if cond.options.pH_scale == "concentration" else -(log_cH - Af[:, 0])
+    dz2_s = system.charge_terms[1]
+    si = x @ inputs.nu_solid.T + inputs.log_Ks0 + Af * dz2_s[None, :] + inputs.h_solid[None, :] * log_cH[:, None]
+    P_all, P = inputs.nu_solid.shape[0], out.solid_amount.shape[1]
+    amounts = np.zeros((B, P_all))
+    amounts[:, :P] = out.solid_amount
+    present = np.zeros_like(amounts, dtype=bool)
+    present[:, :P] = out.solid_present
+    si = np.where(present, 0.0, si)
+    return Equilibrium(system=system, c=out.c, solid_amount=amounts, saturation_index=si, ionic_strength_M=I,
+                       pH=pH_arr, totals=cond.totals, max_residual=float(out.residual.max(initial=0.0)),
+                       iterations=int(out.iterations.max(initial=0)))
 
 
 def _csr(nu: Array) -> tuple[NDArray[np.int64], NDArray[np.int64], Array]:
