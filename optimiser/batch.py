@@ -34,6 +34,13 @@ class BatchRow:
     hazard: str = ""
     message: str = ""
     seconds: float = 0.0
+    meets_criteria: bool = False
+    largest_part: str = ""  # the error budget's largest part after standardisation, worded
+
+    @property
+    def status(self) -> str:
+        """"ok" (a method meets the criteria), "no method" (the run worked, nothing meets them), or "failed"."""
+        return "failed" if not self.ok else "ok" if self.meets_criteria else "no method"
 
 
 def method_text(candidate: Any) -> str:
@@ -62,15 +69,28 @@ def run_one(path: str, out_dir: str, seed: int, base: str | None = None, report_
                                               report_format=report_format, analysis=analyse(result))
         e = result.recommended
         if e is None:
-            return BatchRow(path, name, True, report_path.name, json_path.name, "no feasible method",
-                            message="no feasible method found", seconds=time.perf_counter() - t0)
-        return BatchRow(path, name, True, report_path.name, json_path.name, method_text(e.candidate), e.error_percent,
-                        e.margin, HAZARD_NAMES[e.hazard], seconds=time.perf_counter() - t0)
+            return BatchRow(path, name, True, report_path.name, json_path.name, "no method meets the criteria",
+                            message="no method meets the criteria; none can even be run", seconds=time.perf_counter() - t0)
+        return BatchRow(path, name, True, report_path.name, json_path.name,
+                        ("" if result.meets_criteria else "closest compromise, not to follow: ") + method_text(e.candidate),
+                        e.standardised_error_percent, e.margin, HAZARD_NAMES[e.hazard],
+                        message="" if result.meets_criteria else "no method meets the criteria",
+                        seconds=time.perf_counter() - t0, meets_criteria=result.meets_criteria,
+                        largest_part=_largest_part(result.recommended_titration))
     except OptimiserError as exc:
         return BatchRow(path, name, False, message=str(exc), seconds=time.perf_counter() - t0)
     except Exception as exc:  # a bug must not stop the other scenarios; it is reported with its type
         tb = traceback.format_exception_only(type(exc), exc)[-1].strip()
         return BatchRow(path, name, False, message=f"internal error: {tb}", seconds=time.perf_counter() - t0)
+
+
+def _largest_part(t: Any) -> str:
+    from .readout import budget_label
+    std = t.standardised_budget if t is not None else {}
+    if not std:
+        return ""
+    key = max(std, key=lambda k: abs(std[k]))
+    return f"{budget_label(key)} {std[key]:+.3f} %"
 
 
 def _fmt(x, nd=2) -> str:
@@ -83,10 +103,10 @@ def index_html(rows: list[BatchRow]) -> str:
     body = []
     for r in rows:
         link = f'<a href="{e(r.html)}">{e(r.name)}</a>' if r.ok and r.html else e(r.name)
-        status = "ok" if r.ok else "failed"
+        status = r.status
         data = f'<a href="{e(r.json)}">json</a>' if r.json else ""
-        body.append(f"<tr class='{status}'><td>{link}</td><td>{e(r.method)}</td><td class='n'>{_fmt(r.error_percent, 3)}</td>"
-                    f"<td class='n'>{_fmt(r.margin)}</td><td>{e(r.hazard)}</td><td>{status}</td><td>{e(r.message)}</td>"
+        body.append(f"<tr class='{status.replace(' ', '-')}'><td>{link}</td><td>{e(r.method)}</td><td class='n'>{_fmt(r.error_percent, 3)}</td>"
+                    f"<td>{e(r.largest_part)}</td><td class='n'>{_fmt(r.margin)}</td><td>{e(r.hazard)}</td><td>{status}</td><td>{e(r.message)}</td>"
                     f"<td>{data}</td><td>{e(r.source)}</td></tr>")
     return f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8"><title>Titration methods: batch comparison</title>
@@ -94,12 +114,13 @@ def index_html(rows: list[BatchRow]) -> str:
 body {{ font: 14px/1.45 "Segoe UI", Arial, sans-serif; margin: 24px; color: #1d2433; }}
 table {{ border-collapse: collapse; width: 100%; }} th, td {{ border-bottom: 1px solid #d5d9e0; padding: 4px 6px; text-align: left; }}
 th {{ background: #f4f6f9; }} td.n {{ text-align: right; font-variant-numeric: tabular-nums; }}
-tr.failed td {{ background: #fdf1f0; }} h1 {{ font-size: 1.4em; }}
+tr.failed td, tr.no-method td {{ background: #fdf1f0; }} h1 {{ font-size: 1.4em; }}
 </style></head><body>
 <h1>Titration methods: {len(rows)} scenarios compared</h1>
-<p>{sum(r.ok for r in rows)} succeeded, {sum(not r.ok for r in rows)} failed. Error: predicted titration error of the recommended
-method (%); margin: selectivity margin delta log(cK') over the strongest interferent left in solution (blank: none left).</p>
-<table><tr><th>Scenario</th><th>Recommended method</th><th>Error / %</th><th>Margin</th><th>Hazard</th><th>Status</th><th>Message</th><th>Data</th><th>File</th></tr>
+<p>{sum(r.status == "ok" for r in rows)} with a method that meets the criteria, {sum(r.status == "no method" for r in rows)}
+where no method meets them, {sum(not r.ok for r in rows)} failed. Error: predicted titration error of the recommended
+method after standardisation (%); largest part: the largest cause of that error; margin: selectivity margin delta log(cK') over the strongest interferent left in solution (blank: none left).</p>
+<table><tr><th>Scenario</th><th>Recommended method</th><th>Error / %</th><th>Largest part</th><th>Margin</th><th>Hazard</th><th>Status</th><th>Message</th><th>Data</th><th>File</th></tr>
 {''.join(body)}
 </table></body></html>
 """
@@ -108,11 +129,11 @@ method (%); margin: selectivity margin delta log(cK') over the strongest interfe
 def summary_csv(rows: list[BatchRow]) -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["scenario", "source", "status", "recommended_method", "predicted_error_percent", "selectivity_margin_log", "hazard",
-                "report", "json", "message", "seconds"])
+    w.writerow(["scenario", "source", "status", "recommended_method", "standardised_error_percent", "largest_error_part",
+                "selectivity_margin_log", "hazard", "report", "json", "message", "seconds"])
     for r in rows:
-        w.writerow([r.name, r.source, "ok" if r.ok else "failed", r.method, _fmt(r.error_percent, 4), _fmt(r.margin, 3), r.hazard,
-                    r.html, r.json, r.message, f"{r.seconds:.2f}"])
+        w.writerow([r.name, r.source, r.status, r.method, _fmt(r.error_percent, 4), r.largest_part, _fmt(r.margin, 3),
+                    r.hazard, r.html, r.json, r.message, f"{r.seconds:.2f}"])
     return buf.getvalue()
 
 

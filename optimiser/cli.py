@@ -319,6 +319,7 @@ def _titration_lines(t) -> list[str]:
     """What ``optimiser simulate`` prints about a simulated titration, after the method's line."""
     lines = [f"  equivalence: {t.equivalence_mL:.3f} mL" + (f"  (after {t.excess_mL:.3f} mL titrant excess)" if t.excess_mL else "")]
     lines += _endpoint_lines(t)
+    lines += _budget_lines(t)
     if t.cotitrated:
         lines.append("  co-titrated at the end point: " + ", ".join(f"{m} {100 * v:.2f} %" for m, v in t.cotitrated.items()))
     if t.pM_eq:
@@ -337,7 +338,7 @@ def _cmd_simulate(a) -> int:
     sc = _load_scenario(a.scenario)
     _solver_ready()
     method = _simulate_method(a, sc)
-    t = simulate(sc.sample, method, pH_drift=True)
+    t = simulate(sc.sample, method, pH_drift=True, standardise=True)
     if a.json:
         sys.stdout.write(dumps(titration_json(t)))
         return 0
@@ -369,20 +370,39 @@ def _cmd_run(a) -> int:
                                           analysis=analyse(result))
     e = result.recommended
     print(f"{sc.name}: {result.evaluations} evaluations in {result.wall_time_s:.1f} s (seed {seed})")
+    if not result.meets_criteria:
+        print("  NO METHOD MEETS THE CRITERIA" + (": the closest compromise below is not a procedure to follow"
+                                                  if e is not None else ""))
     for note in result.notes:
         print(f"  {note}")
     if e is not None:
         c = e.candidate
-        print(f"  recommended: {c.titrant} {sc.titrant_conc_M:g} M, pH {c.pH:.2f} ({c.buffer}), {c.indicator}, "
+        print(f"  {'recommended' if result.meets_criteria else 'closest compromise'}: {c.titrant} {sc.titrant_conc_M:g} M, "
+              f"pH {c.pH:.2f} ({c.buffer}), {c.indicator}, "
               + (", ".join(f"{m} {d * 1000:.3g} mM" for m, d in c.masking) or "no masking")
               + f", {strategy(c.mode).describe(c)}")
         t = result.recommended_titration
         print(f"  end point {t.endpoint_mL:.2f} mL, error {t.error_percent:+.2f} %, sharpness {t.sharpness_mL:.3f} mL, "
               f"robust pH {result.robust_pH[0]:.2f}-{result.robust_pH[1]:.2f}" if result.robust_pH else
               f"  end point {t.endpoint_mL:.2f} mL, error {t.error_percent:+.2f} %")
+        print("\n".join(_budget_lines(t)))
     print(f"  report: {report_path}")
     print(f"  data:   {json_path}")
-    return 0 if e is not None else 1
+    return 0 if result.meets_criteria else 1
+
+
+def _budget_lines(t) -> list[str]:
+    """The error budget by cause, as simulated and after standardisation, largest first."""
+    from .readout import budget_label
+    if not t.budget:
+        return []
+    std = t.standardised_budget
+    lines = [f"  error after standardisation {t.standardised_error_percent:+.3f} % (as simulated {t.error_percent:+.3f} %); "
+             "by cause, as simulated / after standardisation:"]
+    for k in sorted(std, key=lambda k: -abs(std[k])):
+        if max(abs(std[k]), abs(t.budget.get(k, 0.0))) >= 5e-4:
+            lines.append(f"    {budget_label(k)}: {t.budget.get(k, 0.0):+.3f} % / {std[k]:+.3f} %")
+    return lines
 
 
 def _cmd_check(a) -> int:
@@ -407,10 +427,10 @@ def _cmd_batch(a) -> int:
     _solver_ready()
     rows = run_batch(paths, Path(a.out), jobs=jobs, seed=seed, progress=True, report_format=a.format)
     for r in rows:
-        print(f"{'ok    ' if r.ok else 'FAILED'} {r.name}: {r.method if r.ok else r.message}")
+        print(f"{r.status.upper():<9} {r.name}: {r.method if r.ok else r.message}")
     print(f"index: {Path(a.out) / 'index.html'}")
     print(f"summary: {Path(a.out) / 'summary.csv'}")
-    return 0 if all(r.ok for r in rows) else 1
+    return 0 if all(r.status == "ok" for r in rows) else 1
 
 
 COMMANDS = {"conditional": _cmd_conditional, "constants": _cmd_constants, "simulate": _cmd_simulate, "run": _cmd_run,

@@ -53,9 +53,10 @@ def _no_worse(simpler: Evaluation, e: Evaluation) -> bool:
     """True when a method without some masking agent does the job as well (small tolerances, our own)."""
     if not simpler.feasible and e.feasible:
         return False
-    if simpler.error_percent is None or e.error_percent is None:
-        return simpler.error_percent is None and e.error_percent is None
-    if abs(simpler.error_percent) > abs(e.error_percent) + 0.05:
+    a, b = simpler.standardised_error_percent, e.standardised_error_percent
+    if a is None or b is None:
+        return a is None and b is None
+    if abs(a) > abs(b) + 0.05:
         return False
     if simpler.sharpness_mL is not None and e.sharpness_mL is not None and simpler.sharpness_mL > 1.05 * e.sharpness_mL + 0.005:
         return False
@@ -96,12 +97,14 @@ def recommend(front: Sequence[Evaluation], scenario: Scenario) -> tuple[Evaluati
     """Pick one method from the front by a stated rule; returns it (None where nothing is feasible) and the rule."""
     weights = np.array([scenario.targets.weights[k] for k in scenario.objectives])
     feas = [e for e in front if e.feasible]
-    rule = ("among feasible Pareto members whose predicted |error| meets the target "
+    rule = ("among feasible Pareto members (every acceptance criterion met) whose predicted |error| after "
+            "standardisation meets the target "
             f"({scenario.targets.max_error_percent:g} %), the one with the smallest weighted sum of the objectives, each "
             "normalised to 0-1 over the front (weights: " + ", ".join(f"{k} {w:g}" for k, w in zip(scenario.objectives, weights)) + ")")
     if not feas:
         return None, rule
-    within = [e for e in feas if e.error_percent is not None and abs(e.error_percent) <= scenario.targets.max_error_percent]
+    target = scenario.targets.max_error_percent
+    within = [e for e in feas if e.standardised_error_percent is not None and abs(e.standardised_error_percent) <= target]
     pool = within or feas
     if not within:
         rule += "; no member meets the error target, so the whole feasible front was used"
@@ -109,20 +112,41 @@ def recommend(front: Sequence[Evaluation], scenario: Scenario) -> tuple[Evaluati
     lo, hi = F.min(axis=0), F.max(axis=0)
     span = np.where(hi > lo, hi - lo, 1.0)
     score = ((F - lo) / span) @ weights
-    order = np.lexsort((np.array([abs(e.error_percent or 0) for e in pool]), score))
+    order = np.lexsort((np.array([abs(e.standardised_error_percent or 0) for e in pool]), score))
     return pool[int(order[0])], rule
 
 
-def missed_target_note(scenario: Scenario, t: Titration) -> str | None:
-    """What to say when the recommended method misses the error target (None where it meets it)."""
-    target = scenario.targets.max_error_percent
-    if abs(t.error_percent) <= target:
+def compromise(evals: Sequence[Evaluation]) -> Evaluation | None:
+    """The closest compromise where nothing is feasible: a method that can be run and read (only chemistry criteria
+    fail), with the fewest failing criteria, then the smallest error after standardisation. None where none can be
+    run."""
+    runnable = [e for e in evals if e.titration is not None and e.titration.endpoint_mL is not None
+                and not any(VIOLATIONS[k][0] != "chemistry" for k in e.kinds)]
+    if not runnable:
         return None
-    worst = max(t.cotitrated.items(), key=lambda kv: kv[1], default=None)
+    return min(runnable, key=lambda e: (len(e.kinds), abs(e.standardised_error_percent or 0.0), e.candidate.key()))
+
+
+def meets_criteria(scenario: Scenario, e: Evaluation | None) -> bool:
+    """True where a method meets every acceptance criterion and, after standardisation, the error target."""
+    if e is None or not e.feasible or e.standardised_error_percent is None:
+        return False
+    return abs(e.standardised_error_percent) <= scenario.targets.max_error_percent
+
+
+def compromise_note(scenario: Scenario, e: Evaluation) -> str | None:
+    """What to say when the recommended method is only the closest compromise (None where it meets the criteria)."""
+    if meets_criteria(scenario, e):
+        return None
+    target = scenario.targets.max_error_percent
+    t = e.titration
+    failing = "; ".join(e.violations) if e.violations else (
+        f"the error after standardisation is {e.standardised_error_percent:+.2f} % (target {target:g} %)")
+    worst = max(t.cotitrated.items(), key=lambda kv: kv[1], default=None) if t is not None else None
     why = (f"; {worst[0]} is {100 * worst[1]:.0f} % co-titrated at the end point" if worst and worst[1] > 0.01 else "")
-    return (f"No method in the search space meets the error target of {target:g} %: the recommendation is "
-            f"the closest compromise found (predicted error {t.error_percent:+.2f} %{why}). Widen the "
-            "search (pH range, titrants, masking agents) or separate the interferent before the titration.")
+    return (f"No method meets the criteria. The closest compromise found fails: {failing}{why}. It is shown for "
+            "comparison only, not as a procedure to follow. Widen the search (pH range, titrants, masking agents), "
+            "separate the interferent before the titration, or relax the target.")
 
 
 def infeasible_note(evals: Sequence[Evaluation]) -> str:

@@ -11,6 +11,7 @@ from .scenario import Scenario
 from .titration import Titration, simulate_many
 
 SEARCH_POINTS = 41  # coarse curve points per candidate during the search (the recommendation is re-run finer)
+SIMULATION = {"standardise": True, "pH_drift": True}  # what every candidate's criteria need
 
 
 @dataclass(frozen=True)
@@ -18,7 +19,7 @@ class Evaluation:
     """Objectives, constraints and the simulation behind one candidate."""
 
     candidate: Candidate
-    error_percent: float | None
+    error_percent: float | None  # as simulated (before standardisation)
     margin: float | None
     sharpness_mL: float | None
     hazard: int
@@ -31,6 +32,11 @@ class Evaluation:
     @property
     def feasible(self) -> bool:
         return all(g <= 0 for g in self.G)
+
+    @property
+    def standardised_error_percent(self) -> float | None:
+        """The error left after the titrant is standardised against the analyte by the same method [%]."""
+        return self.titration.standardised_error_percent if self.titration is not None else self.error_percent
 
 
 def _error_kind(exc: Exception) -> str:
@@ -77,9 +83,9 @@ class Evaluator:
         self.n_prescreened += len(screened)
         failed = {k: (_error_kind(e), str(e)) for k, e in errors}
         for k, (c, t) in enumerate(zip(to_sim, sims)):
-            self.cache[c.key()] = self._score(c, t, [failed[k]] if k in failed else [])
+            self.cache[c.key()] = self.score(c, t, [failed[k]] if k in failed else [])
         for c, v in screened.items():
-            self.cache[c.key()] = self._score(c, None, v)
+            self.cache[c.key()] = self.score(c, None, v)
         return [self.cache[c.key()] for c in candidates]
 
     def _simulate(self, to_sim: Sequence[Candidate]) -> tuple[list[Titration | None], list]:
@@ -88,21 +94,23 @@ class Evaluator:
         if not methods:
             return [], errors
         try:
-            return simulate_many(self.scenario.sample, methods, n_points=self.n_points, errors=errors), errors
+            return simulate_many(self.scenario.sample, methods, n_points=self.n_points, errors=errors, **SIMULATION), errors
         except ConvergenceError:
             # rare: retry one by one so that only the offending candidate is lost
             sims, errors = [], []
             for k, m in enumerate(methods):
                 local: list = []
                 try:
-                    sims.append(simulate_many(self.scenario.sample, [m], n_points=self.n_points, errors=local)[0])
+                    sims.append(simulate_many(self.scenario.sample, [m], n_points=self.n_points, errors=local, **SIMULATION)[0])
                 except ConvergenceError as exc:
                     sims.append(None)
                     local = [(0, exc)]
                 errors += [(k, e) for _, e in local]
             return sims, errors
 
-    def _score(self, c: Candidate, t: Titration | None, violations: list[tuple[str, str]]) -> Evaluation:
+    def score(self, c: Candidate, t: Titration | None, violations: list[tuple[str, str]]) -> Evaluation:
+        """Objectives and constraints of a candidate from its simulation (None where it was not simulated) and the
+        violations already found (kind, text)."""
         sc = self.scenario
         v = list(violations)
         err = sharp = None
@@ -110,7 +118,8 @@ class Evaluator:
             err, sharp = t.error_percent, t.sharpness_mL
             v += ob.titration_violations(sc, c, t)
         margin = ob.selectivity_margin(sc, c, t) if t is not None else None
-        facts = ob.Facts(candidate=c, titration=t, error_percent=err, margin=margin, sharpness_mL=sharp,
+        std_err = t.standardised_error_percent if t is not None else None
+        facts = ob.Facts(candidate=c, titration=t, error_percent=std_err, margin=margin, sharpness_mL=sharp,
                          hazard=ob.hazard_of(c))
         kinds = tuple(dict.fromkeys(kind for kind, _ in v))
         return Evaluation(candidate=c, error_percent=err, margin=margin, sharpness_mL=sharp, hazard=facts.hazard,

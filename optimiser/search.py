@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 import time
 from collections.abc import Callable
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 
 import numpy as np
 from pymoo.algorithms.moo.nsga2 import RankAndCrowding
@@ -50,7 +50,11 @@ class Alternative:
 
 @dataclass(frozen=True)
 class SearchResult:
-    """What the search found (read by the analysis, the report and the JSON writer)."""
+    """What the search found (read by the analysis, the report and the JSON writer).
+
+    ``recommended`` is the method picked by the rule; ``meets_criteria`` says whether it meets every acceptance
+    criterion and the error target (where it does not, it is the closest compromise, never a procedure to follow).
+    """
 
     scenario: Scenario
     seed: int
@@ -62,6 +66,7 @@ class SearchResult:
     recommended: Evaluation | None
     recommended_titration: Titration | None
     rule: str
+    meets_criteria: bool
     robust_pH: tuple[float, float] | None
     robust_dose: dict[str, tuple[float, float]]
     robustness_pH_scan: tuple[np.ndarray, np.ndarray] | None
@@ -139,23 +144,26 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 40, n_gen: int
     all_evals = list(evaluator.cache.values())
     front = decision.pareto(decision.prune_masking(evaluator, decision.pareto(all_evals)))
     chosen, rule = decision.recommend(front, scenario)
-    rec_t = None
     notes = []
+    if chosen is None:
+        notes.append(decision.infeasible_note(all_evals))
+        chosen = decision.compromise(all_evals)
+        if chosen is not None:
+            rule += "; nothing meets every criterion, so the closest compromise that can be run is shown"
+    rec_t = None
     pH_w, doses, scan_pH, scan_dose = None, {}, None, {}
     if chosen is not None:
-        rec_t = simulate(scenario.sample, chosen.candidate.method(scenario), n_points=161, pH_drift=True)
-        chosen = replace(chosen, titration=rec_t, error_percent=rec_t.error_percent, sharpness_mL=rec_t.sharpness_mL)
+        rec_t = simulate(scenario.sample, chosen.candidate.method(scenario), n_points=161, pH_drift=True, standardise=True)
+        chosen = evaluator.score(chosen.candidate, rec_t, [])  # the criteria again, on the finer curve
         if with_robustness:
             pH_w, doses, scan_pH, scan_dose = robustness(scenario, chosen)
-        note = decision.missed_target_note(scenario, rec_t)
+        note = decision.compromise_note(scenario, chosen)
         if note:
             notes.append(note)
-    else:
-        notes.append(decision.infeasible_note(all_evals))
     alts = tuple(Alternative(e, strategy_of(e)) for e in front)
     curves = conditional_curves(scenario, chosen.candidate if chosen else None, CC_PH)
     return SearchResult(scenario=scenario, seed=seed, evaluations=evaluator.n_evaluations,
                         generations=res.algorithm.n_gen, wall_time_s=time.perf_counter() - t0,
                         objectives=scenario.objectives, front=alts, recommended=chosen, recommended_titration=rec_t,
-                        rule=rule, robust_pH=pH_w, robust_dose=doses, robustness_pH_scan=scan_pH,
+                        rule=rule, meets_criteria=decision.meets_criteria(scenario, chosen), robust_pH=pH_w, robust_dose=doses, robustness_pH_scan=scan_pH,
                         robustness_dose_scan=scan_dose, conditional=curves, notes=tuple(notes), history=tuple(history))

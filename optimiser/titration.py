@@ -15,7 +15,7 @@ a third the equivalence and end points themselves; :func:`_finish` reads them (:
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from numpy.typing import NDArray
@@ -108,6 +108,7 @@ class Titration:
     slow_analytes: tuple[str, ...] = ()
     analyte_precipitates: tuple[str, ...] = ()
     mass_balance_error: float = 0.0  # largest relative mass-balance error over the curve, recomputed
+    standardisation: EndPoint | None = None  # the same method on the primary standard, where simulated
 
     @property
     def endpoint_mL(self) -> float | None:
@@ -133,6 +134,27 @@ class Titration:
     def budget(self) -> dict[str, float]:
         """The first end point's error split by cause [%]."""
         return self.endpoints[0].budget
+
+    @property
+    def standardised_error_percent(self) -> float | None:
+        """The error left after the titrant is standardised against the analyte with the same method [%]:
+        (1 + e) / (1 + e_std) - 1. The raw error where no standardisation was simulated."""
+        e = self.error_percent
+        std = self.standardisation
+        if e is None or std is None or std.error_percent is None:
+            return e
+        return ((1 + e / 100) / (1 + std.error_percent / 100) - 1) * 100
+
+    @property
+    def standardised_budget(self) -> dict[str, float]:
+        """The error budget after standardisation [%]: each part less the standard's own, over (1 + e_std); the
+        parts add up to :attr:`standardised_error_percent`. The raw budget where no standardisation was simulated."""
+        std = self.standardisation
+        if std is None or std.error_percent is None or not self.budget:
+            return dict(self.budget)
+        scale = 1 + std.error_percent / 100
+        keys = list(dict.fromkeys([*self.budget, *std.budget]))
+        return {k: (self.budget.get(k, 0.0) - std.budget.get(k, 0.0)) / scale for k in keys}
 
     @property
     def warnings(self) -> tuple[str, ...]:
@@ -238,7 +260,8 @@ def _slice(eq: Equilibrium, sl: slice) -> Equilibrium:
                        max_residual=eq.max_residual, iterations=eq.iterations)
 
 
-def simulate(sample: Sample, method: Method, n_points: int = 161, pH_drift: bool = False) -> Titration:
+def simulate(sample: Sample, method: Method, n_points: int = 161, pH_drift: bool = False,
+             standardise: bool = False) -> Titration:
     """Simulate the titration of ``sample`` by ``method`` on the full equilibrium.
 
     Parameters
@@ -250,12 +273,14 @@ def simulate(sample: Sample, method: Method, n_points: int = 161, pH_drift: bool
     pH_drift : bool
         Also solve with the pH free (proton balance with the buffer's own acid-base chemistry and the
         titrant's protons) and report how far it drifts up to the end point.
+    standardise : bool
+        Also simulate the standardisation of the titrant (see :func:`simulate_many`).
 
     Returns
     -------
     Titration
     """
-    return simulate_many(sample, [method], n_points=n_points, pH_drift=pH_drift)[0]
+    return simulate_many(sample, [method], n_points=n_points, pH_drift=pH_drift, standardise=standardise)[0]
 
 
 def _fine_grid(p: Plan, eq: Equilibrium, ref: float) -> Array | None:
@@ -269,8 +294,15 @@ def _fine_grid(p: Plan, eq: Equilibrium, ref: float) -> Array | None:
     return np.linspace(max(0.0, x - 4 * step), min(p.V_hi * 1.2, x + 4 * step), p.n_points)
 
 
+def standard_sample(sample: Sample) -> Sample:
+    """The primary standard the titrant is standardised against: the analyte alone, at the sample's concentrations,
+    volume, ionic strength and temperature (titrated by the same method, with the same indicator dose)."""
+    return Sample(sample.volume_mL, {a: sample.metals[a] for a in sample.analyte}, sample.analyte,
+                  sample.ionic_strength_M, sample.temperature_C)
+
+
 def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161, pH_drift: bool = False,
-                  errors: list | None = None) -> list[Titration | None]:
+                  errors: list | None = None, standardise: bool = False) -> list[Titration | None]:
     """Simulate many methods on one sample; candidates that share a chemical system are solved together.
 
     Parameters
@@ -278,6 +310,9 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
     errors : list, optional
         If given, a method that cannot be evaluated (a missing constant) yields None and its error is appended
         as ``(index, exception)``; otherwise the error is raised.
+    standardise : bool
+        Also simulate each method on the primary standard (:func:`standard_sample`), so that each titration carries
+        the error left after the titrant is standardised (``Titration.standardisation``).
     """
     plans: list[Plan | None] = []
     for k, m in enumerate(methods):
@@ -289,6 +324,17 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
             errors.append((k, exc))
             plans.append(None)
     live = [p for p in plans if p is not None]
+    std = [plan(standard_sample(sample), p.method, n_points) for p in live] if standardise else []
+    done = _run(live + std, pH_drift, n_drift=len(live))
+    if std:
+        done = [replace(t, standardisation=s.endpoints[0]) for t, s in zip(done[:len(live)], done[len(live):])]
+    results = iter(done)
+    return [None if p is None else next(results) for p in plans]
+
+
+def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
+    """The three batched solves (coarse curves, refined end-point regions, equivalence and end points), then the
+    read-out of each titration (the pH drift of the first ``n_drift``)."""
     coarse = _solve_batch(live, [p.V for p in live])
     refs = [p.method.strategy.reference(p, eq) for p, eq in zip(live, coarse)]
     fine_grids = [_fine_grid(p, eq, ref) for p, eq, ref in zip(live, coarse, refs)]
@@ -298,9 +344,10 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
         V_eps.append(readout.interp_crossing(grid, p.method.strategy.turned(p, eqf, ref), 0.5) if eqf is not None else None)
     probes = [np.array([p.V_eq_ref] + ([v] if v is not None else [])) for p, v in zip(live, V_eps)]
     probed = _solve_batch(live, probes)
-    results = iter(_finish(p, c, f, g, pr, ref, v, pH_drift)
-                   for p, c, f, g, pr, ref, v in zip(live, coarse, fine, fine_grids, probed, refs, V_eps))
-    return [None if p is None else next(results) for p in plans]
+    drifts = _pH_drifts(live[:n_drift], coarse, V_eps) if pH_drift else []
+    drifts += [None] * (len(live) - len(drifts))
+    return [_finish(p, c, f, g, pr, ref, v, d)
+            for p, c, f, g, pr, ref, v, d in zip(live, coarse, fine, fine_grids, probed, refs, V_eps, drifts)]
 
 
 def _sharpness_band(p: Plan, eq: Equilibrium, eqf: Equilibrium, grid: Array, ref: float) -> tuple[float | None, float | None]:
@@ -338,7 +385,7 @@ def _endpoint_reads(p: Plan, eqp: Equilibrium, V_ep: float | None):
 
 
 def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | None, eqp: Equilibrium, ref: float,
-            V_ep: float | None, pH_drift: bool) -> Titration:
+            V_ep: float | None, drift: float | None) -> Titration:
     sample, method, prep, system = plan.sample, plan.method, plan.prep, plan.system
     strategy, indicator = method.strategy, method.indicator_info
     comps, metals = system.components, plan.metals
@@ -366,7 +413,6 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     h_free = readout.dominant_free_form(fr, strategy.free_form_point())
     change = strategy.colour_change(indicator.complex_colour(strategy.complex_metal(method, sample)),
                                     indicator.free_colour(h_free))
-    drift = _pH_drift(plan, V_ep) if (pH_drift and V_ep is not None and strategy.reads_release) else None
     endpoint = EndPoint(label=", ".join(sample.analyte), volume_mL=V_ep, error_percent=error, sharpness_mL=sharp,
                         colour_change=change, pM=pM_ep, budget=budget)
     return Titration(
@@ -424,16 +470,32 @@ def _merge(a: Equilibrium, b: Equilibrium, order: Array) -> Equilibrium:
                        iterations=a.iterations + b.iterations)
 
 
-def _pH_drift(plan: Plan, V_ep: float) -> float:
-    """pH change from the start to the end point with the pH free (buffer capacity)."""
-    system, method, sample = plan.system, plan.method, plan.sample
-    kw = dict(ionic_strength_M=sample.ionic_strength_M, temperature_C=sample.temperature_C)
-    V = np.array([0.0, V_ep])
-    T = plan.totals(V)
-    start = solve(system, T[:1], pH=method.pH, **kw)
-    iH = system.index(H)
-    T_H0 = float(start.c[0] @ system.nu[:, iH])  # proton total that gives the set pH at the start
-    V0 = sample.volume_mL
-    T[:, iH] = T_H0 * V0 / (V0 + V) + TITRANT_PROTONS * method.titrant_conc_M * V / (V0 + V)
-    free = solve(system, T, pH=None, **kw)
-    return float(free.pH[1] - free.pH[0])
+def _pH_drifts(live: Sequence[Plan], coarse: Sequence[Equilibrium], V_eps: Sequence[float | None]) -> list[float | None]:
+    """pH change from the start to the end point with the pH free (the buffer's capacity against the titrant's
+    protons), for every titration whose strategy reads the analyte's release; one solve per chemical system.
+
+    The proton total that gives the set pH at the start is read from the coarse curve's first point (V = 0)."""
+    out: list[float | None] = [None] * len(live)
+    groups: dict[int, list[int]] = {}
+    for k, (p, v) in enumerate(zip(live, V_eps)):
+        if v is not None and p.method.strategy.reads_release:
+            groups.setdefault(id(p.system), []).append(k)
+    for ks in groups.values():
+        system = live[ks[0]].system
+        iH = system.index(H)
+        blocks = []
+        for k in ks:
+            p = live[k]
+            V = np.array([0.0, V_eps[k]])
+            T = p.totals(V)
+            T_H0 = float(coarse[k].c[0] @ system.nu[:, iH])
+            V0 = p.sample.volume_mL
+            T[:, iH] = T_H0 * V0 / (V0 + V) + TITRANT_PROTONS * p.method.titrant_conc_M * V / (V0 + V)
+            blocks.append(T)
+        I = np.concatenate([np.full(2, live[k].sample.ionic_strength_M) for k in ks])
+        Tc = np.concatenate([np.full(2, live[k].sample.temperature_C) for k in ks])
+        restart = np.tile([True, False], len(ks))
+        free = solve(system, np.concatenate(blocks), pH=None, ionic_strength_M=I, temperature_C=Tc, restart=restart)
+        for n, k in enumerate(ks):
+            out[k] = float(free.pH[2 * n + 1] - free.pH[2 * n])
+    return out

@@ -54,10 +54,14 @@ def test_summary_numbers_equal_the_result(written, result):
     html = written[0].read_text()
     t = result.recommended_titration
     assert f'<b id="endpoint-mL">{fmt(t.endpoint_mL, 4)} mL</b>' in html
-    assert f'<b id="error-percent">{signed(t.error_percent, 3)} %</b>' in html
+    assert f'<b id="error-percent">{signed(t.standardised_error_percent, 3)} %</b>' in html
+    assert f"({signed(t.error_percent, 3)} % before)" in html
     doc = json.loads(written[1].read_text())
-    assert doc["recommended"]["pH"] == pytest.approx(result.recommended.candidate.pH, abs=1e-3)
-    assert doc["recommended"]["predicted_error_percent"] == pytest.approx(t.error_percent, abs=1e-4)
+    rec = doc["recommended"] if result.meets_criteria else doc["closest_compromise"]
+    assert (doc["recommended"] is None) == (not result.meets_criteria)
+    assert rec["pH"] == pytest.approx(result.recommended.candidate.pH, abs=1e-3)
+    assert rec["predicted_error_percent"] == pytest.approx(t.error_percent, abs=1e-4)
+    assert sum(rec["error_budget"].values()) == pytest.approx(t.error_percent, abs=1e-3)
     assert f"pH {fmt(result.recommended.candidate.pH, 2)}" in html
 
 

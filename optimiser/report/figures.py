@@ -120,6 +120,27 @@ def titration_figure(analysis: Analysis) -> str:
 HATCHES = ["", "///", "...", "xx", "\\\\", "--", "oo"]
 
 
+def budget_figure(analysis: Analysis) -> str:
+    """The error split by cause, as simulated (grey) and after standardisation (black), with the target."""
+    rows = analysis.budget
+    fig, ax = plt.subplots(figsize=(6.4, 0.45 * max(len(rows), 1) + 1.3))
+    y = np.arange(len(rows))
+    ax.barh(y - 0.18, [r.part_percent for r in rows], height=0.34, color="0.75", edgecolor="black", linewidth=0.5,
+            label="as simulated")
+    ax.barh(y + 0.18, [r.standardised_percent for r in rows], height=0.34, color="0.1", edgecolor="black",
+            linewidth=0.5, hatch="///", label="after standardisation")
+    target = analysis.scenario.targets.max_error_percent
+    for x in (-target, target):
+        ax.axvline(x, color="black", lw=1, linestyle="--")
+    ax.axvline(0, color="black", lw=0.8)
+    ax.set_yticks(y)
+    ax.set_yticklabels([r.label for r in rows], fontsize=7)
+    ax.invert_yaxis()
+    ax.set_xlabel("part of the titration error / % of the analyte")
+    ax.legend(fontsize=7, loc="upper center", bbox_to_anchor=(0.5, -0.3), ncol=2)
+    return _svg(fig)
+
+
 def speciation_figure(analysis: Analysis) -> str:
     rows = [(r.label, r.shares) for r in analysis.speciation]
     fig, ax = plt.subplots(figsize=(6.4, 0.35 * len(rows) + 1.2))

@@ -13,7 +13,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from ..analysis import Analysis
 
 SECTIONS = ("summary", "why", "tradeoffs", "curve", "speciation", "robustness", "assumptions", "safety", "constants")
-FIGURES = ("fig-conditional", "fig-pareto", "fig-curve", "fig-speciation", "fig-robustness")
+FIGURES = ("fig-conditional", "fig-budget", "fig-pareto", "fig-curve", "fig-speciation", "fig-robustness")
 
 
 def _env():
@@ -28,7 +28,8 @@ def _figures(analysis: Analysis) -> dict[str, str]:
     from . import figures  # matplotlib is loaded only when a page is drawn
     figs = {"conditional": figures.conditional_figure(analysis), "pareto": figures.pareto_figure(analysis)}
     if analysis.method is not None:
-        figs.update(titration=figures.titration_figure(analysis), speciation=figures.speciation_figure(analysis),
+        figs.update(budget=figures.budget_figure(analysis),
+                    titration=figures.titration_figure(analysis), speciation=figures.speciation_figure(analysis),
                     robustness=figures.robustness_figure(analysis))
     return figs
 
