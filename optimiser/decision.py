@@ -11,7 +11,6 @@ from .evaluation import Evaluation, Evaluator
 from .objectives import VIOLATIONS
 from .reagents import catalogue
 from .scenario import Scenario
-from .titration import Titration
 
 
 def strategy_of(e: Evaluation) -> str:

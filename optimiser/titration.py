@@ -388,7 +388,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
             V_ep: float | None, drift: float | None) -> Titration:
     sample, method, prep, system = plan.sample, plan.method, plan.prep, plan.system
     strategy, indicator = method.strategy, method.indicator_info
-    comps, metals = system.components, plan.metals
+    metals = plan.metals
     found = list(plan.findings)
     V, eq, (V10, V90) = _with_refined(plan, eq, eqf, grid, ref)
     if eqf is None and ref < readout.UNBOUND_INDICATOR:
