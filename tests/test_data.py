@@ -125,3 +125,19 @@ def test_tables_have_no_duplicate_rows():
     rows = list(csv.DictReader(io.StringIO(resources.files("optimiser").joinpath("data", "complexes.csv").read_text())))
     keys = [(r["metal"], r["ligand"], r["n"], r["h"]) for r in rows]
     assert len(keys) == len(set(keys))
+
+
+@pytest.mark.parametrize("name", TABLES)
+def test_every_row_states_its_uncertainty(name):
+    """Every constant carries an uncertainty in log units (the published figure or its class default, data/README.md)."""
+    for row in data.table(name):
+        assert float(row["uncertainty"]) > 0, (name, row)
+
+
+def test_uncertainty_reaches_the_formation_constant():
+    """The column is read into FormationConstant.uncertainty (memory values at least the 'from memory' default)."""
+    db = database()
+    every = [k for ks in db.complexes.values() for k in ks] + [k for ks in db.protonation.values() for k in ks] + \
+        [k for ks in db.hydrolysis.values() for k in ks] + [s.constant for ss in db.solids.values() for s in ss] + [db.water]
+    assert all(k.uncertainty is not None and k.uncertainty > 0 for k in every)
+    assert all(k.uncertainty >= 0.5 for k in every if k.from_memory)
