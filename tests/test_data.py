@@ -80,11 +80,33 @@ def test_protonation_constants_are_cumulative_and_increasing():
         assert [k.stoichiometry[H] for k in ks] == list(range(1, len(ks) + 1)), lig
 
 
-def test_edta_constants_are_the_nist_selection_in_minteq_v4():
-    """EDTA protonation (cumulative 10.948, 17.221, 20.34, 22.5, 24.0) as in MINTEQA2 v4 / NIST SRD 46 (I = 0)."""
+def test_edta_acid_constants_are_the_nea_review():
+    """EDTA protonation (cumulative 11.24, 18.04, 21.19, 23.42, 24.72 at I = 0) as in ThermoChimie v10a (NEA-TDB, Hummel
+    et al. 2005), the set that treats Na+ and K+ pairs of Y4- as separate species."""
     ks = database().protonation["EDTA"]
-    assert [k.log_K for k in ks] == pytest.approx([10.948, 17.221, 20.34, 22.5, 24.0])
-    assert all(k.ionic_strength_M == 0 and k.ref == "nist46_minteq4" for k in ks)
+    assert [k.log_K for k in ks] == pytest.approx([11.24, 18.04, 21.19, 23.42, 24.72])
+    assert all(k.ionic_strength_M == 0 and k.ref == "thermochimie_v10a" for k in ks)
+
+
+# NIST SRD 46 (MINTEQA2 v4) and NEA (ThermoChimie v10a) log K(MY) at I = 0, with their pKa6 10.948 and 11.24
+# (reference/constants.md sections 1a and 1b). Only K(MY)/K(HY) is free of the alkali-ion medium, so NIST's K(MY)
+# moved by the pKa6 difference must land on NEA's independently reviewed value.
+NIST_NEA_MY = {"Ca": (12.42, 12.69), "Mg": (10.57, 10.90), "Ni": (20.1, 20.54)}
+
+
+@pytest.mark.parametrize("metal", sorted(NIST_NEA_MY), ids=lambda m: f"NIST46-vs-NEA-{m}")
+def test_nist_MY_moved_to_the_nea_basis_agrees_with_nea(metal):
+    """NIST K(MY) + (11.24 - 10.948) is within 0.2 of NEA's K(MY): the rule used for the other metals' rows."""
+    nist, nea = NIST_NEA_MY[metal]
+    assert nist + (11.24 - 10.948) == pytest.approx(nea, abs=0.2)
+    stored = [k for k in database().complexes[(metal, "EDTA")] if "H+" not in k.stoichiometry][0]
+    assert stored.log_K == pytest.approx(nea) and stored.ref == "thermochimie_v10a"
+
+
+def test_nist_EDTA_rows_are_on_the_nea_basis():
+    """Every EDTA row still from NIST carries the +0.292 shift, stated in its note."""
+    rows = [r for r in data.table("complexes.csv") if r["ligand"] == "EDTA" and r["source"] == "nist46_minteq4"]
+    assert rows and all("plus 0.292" in r["note"] for r in rows)
 
 
 @pytest.mark.parametrize("titrant", ["EDTA", "EGTA", "CDTA", "DTPA"])
