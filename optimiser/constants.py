@@ -61,6 +61,10 @@ class FormationConstant:
         Background electrolyte of the source value, or ``"thermodynamic"`` for I = 0.
     note : str
         Free text from the table.
+    uncertainty : float or None
+        Uncertainty of ``log_K`` [log10 units]: the published figure where the source gives one, otherwise the
+        default of the source's quality class (critically evaluated, single study, from memory; see
+        ``data/README.md``).
     """
 
     species: str
@@ -73,11 +77,14 @@ class FormationConstant:
     dH_kJ_mol: float | None = None
     medium: str = ""
     note: str = ""
+    uncertainty: float | None = None
     charges: Mapping[str, int] = field(default_factory=dict, compare=False, repr=False)
 
     def __post_init__(self) -> None:
         if not self.ref:
             raise DataError(f"{self.species}: every constant needs a source key")
+        if self.uncertainty is not None and not self.uncertainty > 0:
+            raise DataError(f"{self.species}: uncertainty must be a positive number of log units, got {self.uncertainty}")
         z = sum(nu * self.charges[c] for c, nu in self.stoichiometry.items())
         if z != self.charge:
             raise DataError(f"{self.species}: charge {self.charge} does not balance the reaction ({z})")
@@ -292,7 +299,8 @@ def database() -> Database:
             species=species, stoichiometry=stoich, charge=z, log_K=float(log_K),
             temperature_C=float(row["temperature_C"]), ionic_strength_M=float(row["ionic_strength_M"]),
             ref=row["source"], dH_kJ_mol=_float_or_none(row.get("dH_kJ_mol")) if dH is None else dH,
-            medium=row.get("medium", "") or "", note=row.get("note", "") or "", charges=charges)
+            medium=row.get("medium", "") or "", note=row.get("note", "") or "",
+            uncertainty=_float_or_none(row.get("uncertainty")), charges=charges)
 
     w = data.table("water.csv")[0]
     water = make("OH-", {H: -1}, w["log_K"], w, charge=-1)

@@ -47,16 +47,20 @@ _CONDITIONS = {"temperature_C": Column(float), "ionic_strength_M": Column(float)
 _SOURCE = {"source": Column(str, reference=True), "note": _OPTIONAL_TEXT}
 _DH = {"dH_kJ_mol": Column(float, required=False)}
 
+# the uncertainty of the stored log10 value [log units]: the source's figure, or its quality class's default
+# (data/README.md); required in every constants table
+_UNCERTAINTY = {"uncertainty": Column(float)}
+
 COLUMNS: dict[str, dict[str, Column]] = {
     "protonation.csv": {"ligand": Column(), "h": Column(int), "log_beta": Column(float), **_CONDITIONS,
-                        "medium": _OPTIONAL_TEXT, **_DH, **_SOURCE},
+                        "medium": _OPTIONAL_TEXT, **_DH, **_UNCERTAINTY, **_SOURCE},
     "complexes.csv": {"metal": Column(), "ligand": Column(), "n": Column(int), "h": Column(int), "log_beta": Column(float),
-                      **_CONDITIONS, "medium": _OPTIONAL_TEXT, **_DH, **_SOURCE},
-    "hydrolysis.csv": {"metal": Column(), "n": Column(int), "log_beta": Column(float), **_CONDITIONS, **_DH, **_SOURCE},
+                      **_CONDITIONS, "medium": _OPTIONAL_TEXT, **_DH, **_UNCERTAINTY, **_SOURCE},
+    "hydrolysis.csv": {"metal": Column(), "n": Column(int), "log_beta": Column(float), **_CONDITIONS, **_DH, **_UNCERTAINTY, **_SOURCE},
     "solids.csv": {"solid": Column(), "metal": Column(), "ligand": Column(), "n": Column(int), "log_Ksp": Column(float),
-                   **_CONDITIONS, **_DH, **_SOURCE},
+                   **_CONDITIONS, **_DH, **_UNCERTAINTY, **_SOURCE},
     # the enthalpy of water is required: it moves the hydrolysis constants from the OH- to the H+ form
-    "water.csv": {"reaction": Column(), "log_K": Column(float), **_CONDITIONS, "dH_kJ_mol": Column(float), **_SOURCE},
+    "water.csv": {"reaction": Column(), "log_K": Column(float), **_CONDITIONS, "dH_kJ_mol": Column(float), **_UNCERTAINTY, **_SOURCE},
     "references.csv": {"key": Column(), "citation": Column(), "location": _OPTIONAL_TEXT, "note": _OPTIONAL_TEXT},
 }
 

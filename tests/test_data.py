@@ -83,11 +83,33 @@ def test_protonation_constants_are_cumulative_and_increasing():
         assert [k.stoichiometry[H] for k in ks] == list(range(1, len(ks) + 1)), lig
 
 
-def test_edta_constants_are_the_nist_selection_in_minteq_v4():
-    """EDTA protonation (cumulative 10.948, 17.221, 20.34, 22.5, 24.0) as in MINTEQA2 v4 / NIST SRD 46 (I = 0)."""
+def test_edta_acid_constants_are_the_nea_review():
+    """EDTA protonation (cumulative 11.24, 18.04, 21.19, 23.42, 24.72 at I = 0) as in ThermoChimie v10a (NEA-TDB, Hummel
+    et al. 2005), the set that treats Na+ and K+ pairs of Y4- as separate species."""
     ks = database().protonation["EDTA"]
-    assert [k.log_K for k in ks] == pytest.approx([10.948, 17.221, 20.34, 22.5, 24.0])
-    assert all(k.ionic_strength_M == 0 and k.ref == "nist46_minteq4" for k in ks)
+    assert [k.log_K for k in ks] == pytest.approx([11.24, 18.04, 21.19, 23.42, 24.72])
+    assert all(k.ionic_strength_M == 0 and k.ref == "thermochimie_v10a" for k in ks)
+
+
+# NIST SRD 46 (MINTEQA2 v4) and NEA (ThermoChimie v10a) log K(MY) at I = 0, with their pKa6 10.948 and 11.24
+# (reference/constants.md sections 1a and 1b). Only K(MY)/K(HY) is free of the alkali-ion medium, so NIST's K(MY)
+# moved by the pKa6 difference must land on NEA's independently reviewed value.
+NIST_NEA_MY = {"Ca": (12.42, 12.69), "Mg": (10.57, 10.90), "Ni": (20.1, 20.54)}
+
+
+@pytest.mark.parametrize("metal", sorted(NIST_NEA_MY), ids=lambda m: f"NIST46-vs-NEA-{m}")
+def test_nist_MY_moved_to_the_nea_basis_agrees_with_nea(metal):
+    """NIST K(MY) + (11.24 - 10.948) is within 0.2 of NEA's K(MY): the rule used for the other metals' rows."""
+    nist, nea = NIST_NEA_MY[metal]
+    assert nist + (11.24 - 10.948) == pytest.approx(nea, abs=0.2)
+    stored = [k for k in database().complexes[(metal, "EDTA")] if "H+" not in k.stoichiometry][0]
+    assert stored.log_K == pytest.approx(nea) and stored.ref == "thermochimie_v10a"
+
+
+def test_nist_EDTA_rows_are_on_the_nea_basis():
+    """Every EDTA row still from NIST carries the +0.292 shift, stated in its note."""
+    rows = [r for r in data.table("complexes.csv") if r["ligand"] == "EDTA" and r["source"] == "nist46_minteq4"]
+    assert rows and all("plus 0.292" in r["note"] for r in rows)
 
 
 @pytest.mark.parametrize("titrant", ["EDTA", "EGTA", "CDTA", "DTPA"])
@@ -266,3 +288,18 @@ def test_scenario_and_conditions_share_the_limits(I, T, ok):
             parse(text)
         with pytest.raises(InputError, match="(ionic strength must be between 0 and 1 M|temperature must be between 0 and 90)"):
             Conditions(ionic_strength_M=I, temperature_C=T)
+
+@pytest.mark.parametrize("name", TABLES)
+def test_every_row_states_its_uncertainty(name):
+    """Every constant carries an uncertainty in log units (the published figure or its class default, data/README.md)."""
+    for row in data.table(name):
+        assert float(row["uncertainty"]) > 0, (name, row)
+
+
+def test_uncertainty_reaches_the_formation_constant():
+    """The column is read into FormationConstant.uncertainty (memory values at least the 'from memory' default)."""
+    db = database()
+    every = [k for ks in db.complexes.values() for k in ks] + [k for ks in db.protonation.values() for k in ks] + \
+        [k for ks in db.hydrolysis.values() for k in ks] + [s.constant for ss in db.solids.values() for s in ss] + [db.water]
+    assert all(k.uncertainty is not None and k.uncertainty > 0 for k in every)
+    assert all(k.uncertainty >= 0.5 for k in every if k.from_memory)

@@ -30,17 +30,28 @@ def test_exact_error_against_ringbom_formula(eps):
     assert et == pytest.approx(100 * eps, rel=0.02, abs=2e-4)
 
 
+HARRIS_SAMPLE = Sample(50.0, {"Ca": 0.0400}, ("Ca",))
+HARRIS_METHOD = Method(pH=10.0, buffer="NaOH", titrant="EDTA", titrant_conc_M=0.0800, indicator="EBT", indicator_conc_M=1e-12)
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "Harris's example pairs log Kf(CaY) 10.65 (NIST, alkali-ion medium) with alpha 0.30 (pKa6 10.37, a medium that does "
+    "not bind Y4-). On one consistent basis (NEA acid and CaY constants, non-binding medium) the model gives pCa 5.97, "
+    "0.12 above; about 5.86 in 0.1 M K+ and 5.6-5.7 with the Na+ of the titrant, neither of which the model holds yet. "
+    "See data/README.md, 'The Harris worked example'."))
 def test_equivalence_pCa_of_the_harris_example():
     """Harris (Quantitative Chemical Analysis) example: 50.0 mL 0.0400 M Ca with 0.0800 M EDTA at pH 10, pCa 5.85 at
-    25.0 mL. The full solver with our constants agrees within 0.2: at I = 0.1 our log K(CaY) is 10.70 (10.65 there)
-    and our alpha(Y4-) 0.39 (0.30 there: NIST I = 0 set moved by Davies, pH on the activity scale). It agrees
-    with the conditional model's exact pM on the same constants to 1e-3 (with a negligible indicator dose: at the usual
-    2e-5 M, EBT itself holds about a tenth as much calcium as is free at equivalence, which the formula ignores)."""
-    sample = Sample(50.0, {"Ca": 0.0400}, ("Ca",))
-    method = Method(pH=10.0, buffer="NaOH", titrant="EDTA", titrant_conc_M=0.0800, indicator="EBT", indicator_conc_M=1e-12)
-    t = simulate(sample, method)
+    25.0 mL, within 0.1."""
+    t = simulate(HARRIS_SAMPLE, HARRIS_METHOD)
+    assert t.pM_eq["Ca"] == pytest.approx(5.85, abs=0.1)
+
+
+def test_equivalence_pCa_of_the_harris_example_agrees_with_the_conditional_model():
+    """The same titration: equivalence at 25.0 mL, and the full solver's pCa equals the conditional model's exact pM on
+    the same constants to 1e-3 (with a negligible indicator dose: at the usual 2e-5 M, EBT itself holds about a tenth as
+    much calcium as is free at equivalence, which the formula ignores)."""
+    t = simulate(HARRIS_SAMPLE, HARRIS_METHOD)
     assert t.equivalence_mL == pytest.approx(25.0)
-    assert t.pM_eq["Ca"] == pytest.approx(5.85, abs=0.2)
     cc = conditional_constant("Ca", "EDTA", 10.0, cond=Conditions(0.1))
     model = float(pM_equivalence(cc.log_K_conditional, 0.0400, 50.0, 0.0800, cc.log_alpha_M))
     assert t.pM_eq["Ca"] == pytest.approx(model, abs=1e-3)
