@@ -6,6 +6,7 @@ from html.parser import HTMLParser
 import pytest
 
 from optimiser.cli import main
+from optimiser.scenario import load
 
 
 def run(capsys, *argv):
@@ -165,6 +166,9 @@ def test_batch_over_all_examples(capsys, tmp_path, scenarios_dir):
         assert (r["status"] == "ok") == doc["meets_criteria"]
         if r["status"] == "no method":
             assert "no method meets the criteria" in r["message"] and r["recommended_method"].startswith("closest compromise")
+        else:  # a recommended method has no part of its error budget beyond the target
+            target = load(r["source"]).targets.max_error_percent
+            assert all(abs(v) <= target for v in doc["recommended"]["error_budget_standardised"].values())
     assert code == (0 if all(r["status"] == "ok" for r in table) else 1), out + err
     index = (tmp_path / "index.html").read_text()
     parser = _Links()
