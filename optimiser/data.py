@@ -310,7 +310,10 @@ SCHEMAS: dict[tuple[str, str | None], Schema] = {
         "forms": Key(dict, items=Key(str)), "complex_colours": Key(dict, items=Key(str)),
         "usable_pH": _NUMBER_PAIR, "blocked_by": Key(list, items=Key(str)), "needs_Mg_for_Ca": Key(bool),
         "conc_M": Key(float), "dose": Key(str), "formula": Key(str), "hazard": _HAZARD,
-        "sources": Key(list, items=Key(str), reference=True), "search_default": _SEARCH_DEFAULT},
+        "sources": Key(list, items=Key(str), reference=True), "search_default": _SEARCH_DEFAULT,
+        # levels of a blocking metal that a published method tolerates [mg/L in the sample], and their source
+        "tolerated": optional(dict, None, nullable=True, keys={
+            "source": Key(str, reference=True), "mg_per_L": Key(dict, items=Key(float))})},
 }
 
 

@@ -22,6 +22,7 @@ Array = NDArray[np.float64]
 DROP_mL = 0.05  # one drop from a burette (common practice)
 GRADUAL_DROPS = 8.0  # an end point that takes more than 8 drops to turn is too gradual to see (common practice)
 MASKED_THRESHOLD = 0.99  # a blocking metal counts as masked when 99 % of it is held away from the indicator
+BLOCK_SHARE = 0.1  # a metal that can hold more than a tenth of the dye where it should be free blocks it (our own)
 UNBOUND_INDICATOR = 0.2  # below this bound fraction at the start, the indicator shows no colour change (our own)
 CATEGORIES = ("free", "bound to titrant", "bound to indicator", "masked", "bound to buffer ligand", "hydroxo complexes",
               "solid")
@@ -171,14 +172,47 @@ def solid_findings(system, solids: Sequence[str], sample: Sample) -> tuple[list[
     return analyte_solids, out
 
 
-def blocking(spec_start: Mapping[str, Mapping[str, float]], sample: Sample, method: Method) -> list[str]:
-    """Metals listed as blocking the indicator that are present and not held away from it at the start."""
+def _holds_dye(eq: Equilibrium, method: Method, metal: str) -> bool:
+    """Whether the data hold a constant for the metal's complex with the indicator (it is then in the equilibrium)."""
+    s = eq.system
+    if metal not in s.components:
+        return False
+    i, j = s.index(metal), s.index(method.indicator)
+    return bool(np.any((s.nu[:, i] > 0) & (s.nu[:, j] > 0)))
+
+
+def blocking(spec_start: Mapping[str, Mapping[str, float]], sample: Sample, method: Method, eq_end: Equilibrium,
+             point: int) -> list[str]:
+    """Metals that block the indicator, judged by amount.
+
+    A metal listed as blocking the dye and not held away from it (:data:`MASKED_THRESHOLD`) blocks it:
+
+    - where a published method states the level it tolerates (``tolerated`` in indicators.yaml), above that level;
+    - where the data hold its complex with the dye, when it still holds more than :data:`BLOCK_SHARE` of the dye
+      at the end point (``eq_end`` at ``point``: the equilibrium already holds the dye);
+    - otherwise when its amount left in solution exceeds :data:`BLOCK_SHARE` of the dye's (a blocking metal holds
+      at most its own amount of dye, so less leaves the colour change readable).
+    """
+    from .units import molar_mass_of_metal
+
+    ind = method.indicator_info
     out = []
-    for m in method.indicator_info.blocked_by:
+    for m in ind.blocked_by:
         sp = spec_start.get(m)
         if sp is None or m not in sample.metals:
             continue
-        if method.strategy.held_from_indicator(sp) < MASKED_THRESHOLD:
+        held = method.strategy.held_from_indicator(sp)
+        if held >= MASKED_THRESHOLD:
+            continue
+        left_M = sample.metals[m] * (1.0 - held)
+        if m in ind.tolerated_mg_L:
+            blocked = left_M * molar_mass_of_metal(m) * 1000.0 > ind.tolerated_mg_L[m]
+        elif _holds_dye(eq_end, method, m):
+            total = eq_end.totals[point, eq_end.system.index(method.indicator)]
+            blocked = float(eq_end.bound(method.indicator, m)[point]) > BLOCK_SHARE * total
+        else:
+            blocked = left_M > BLOCK_SHARE * method.indicator_dose_M
+        if blocked:
             out.append(m)
     return out
 

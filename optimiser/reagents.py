@@ -268,6 +268,8 @@ class Indicator:
     sources: tuple[str, ...]
     formula: str | None = None
     search_default: bool = True
+    tolerated_mg_L: Mapping[str, float] = field(default_factory=dict)  # metal -> level a published method tolerates
+    tolerated_source: str | None = None
 
     def __post_init__(self) -> None:
         _check_hazard(f"indicator {self.id}", self.hazard)
@@ -455,7 +457,9 @@ def _masking(d: Mapping[str, Any]) -> MaskingAgent:
 def _indicator(d: Mapping[str, Any]) -> Indicator:
     return Indicator(d["id"], d["name"], tuple(d["aliases"]), {int(k): v for k, v in d["forms"].items()},
                      dict(d["complex_colours"]), tuple(d["usable_pH"]), tuple(d["blocked_by"]), d["needs_Mg_for_Ca"],
-                     d["conc_M"], d["dose"], d["hazard"], tuple(d["sources"]), d["formula"], d["search_default"])
+                     d["conc_M"], d["dose"], d["hazard"], tuple(d["sources"]), d["formula"], d["search_default"],
+                     dict((d["tolerated"] or {}).get("mg_per_L", {})),
+                     (d["tolerated"] or {}).get("source"))
 
 
 def _standard(d: Mapping[str, Any]) -> Standard:
@@ -485,6 +489,8 @@ def _check_indicators(cat: Catalogue) -> None:
         for m in ind.complex_colours:
             if m != "default":
                 _check_metal(m, "indicators.yaml", ind.id, "complex_colours")
+        for m in ind.tolerated_mg_L:
+            _check_metal(m, "indicators.yaml", ind.id, "tolerated.mg_per_L")
         if ind.id not in charges:
             raise DataError("the indicator's ligand has no charge in reagents.yaml (ligands:)", "indicators.yaml", ind.id, "id")
 

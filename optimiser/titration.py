@@ -405,7 +405,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     analyte_solids, solid_facts = readout.solid_findings(system, sorted(set(pre_start) | set(pre_end)), sample)
     found += solid_facts
     spec_start = readout.speciation(eq, 0, prep, method, metals)
-    blocked = readout.blocking(spec_start, sample, method)
+    blocked = readout.blocking(spec_start, sample, method, *((eqp, 1) if V_ep is not None else (eq, -1)))
     if V_ep is None and not blocked and ref >= readout.UNBOUND_INDICATOR and strategy.reads_release:
         blocked += [m for m in (readout.inferred_blocker(eq, method, metals),) if m is not None]
     found += _indicator_findings(plan, blocked, blank, sharp if V_ep is not None else None)

@@ -95,3 +95,23 @@ targets: {max_error_percent: 1.0}
     assert r.notes and any(n.startswith(("No method meets the criteria", "No feasible method")) for n in r.notes)
     if r.recommended is not None:
         assert not r.recommended.feasible or abs(r.recommended.standardised_error_percent) > 1.0
+
+
+@pytest.mark.parametrize("cu_M,blocks", [(1e-8, False), (1e-6, False), (1e-4, True)])
+def test_copper_blocks_EBT_by_amount(cu_M, blocks):
+    """Copper blocks Eriochrome Black T (Standard Methods 2340 C adds an inhibitor for it), but only by amount: it can
+    hold at most its own amount of dye, so 0.6 ug/L (1e-8 M) beside 2e-5 M dye leaves the change readable."""
+    t = simulate(Sample(50, {"Ca": 1.5e-3, "Mg": 0.5e-3, "Cu": cu_M}, ("Ca", "Mg")),
+                 Method(10.0, "ammonia", "EDTA", 0.01, "EBT", buffer_total_M=0.3))
+    assert ("Cu" in t.blocked_by) == blocks
+
+
+@pytest.mark.parametrize("metal,mg_L,blocks", [("Fe(III)", 11.2, False), ("Fe(III)", 27.9, True), ("Cu", 1.0, False),
+                                               ("Cu", 6.4, True), ("Al", 4.0, False), ("Al", 8.1, True)])
+def test_calcium_indicator_tolerates_what_the_standard_says(metal, mg_L, blocks):
+    """Standard Methods 3500-Ca B: the calcium titration at pH 12-13 is not disturbed by Cu 2, Fe(III) 20 or Al 5 mg/L;
+    above those levels the metal is reported as blocking calconcarboxylic acid."""
+    from optimiser.units import molar_mass_of_metal
+    c = mg_L / 1000 / molar_mass_of_metal(metal)
+    t = simulate(Sample(50, {"Ca": 2e-3, metal: c}, ("Ca",)), Method(12.9, "NaOH", "EDTA", 0.01, "calcon_carboxylic"))
+    assert (metal in t.blocked_by) == blocks
