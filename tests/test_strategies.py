@@ -123,3 +123,12 @@ def test_budget_of_aluminium_back_titration_counts_the_inert_complex():
     assert t.error_percent is not None
     assert sum(t.budget.values()) == pytest.approx(t.error_percent, abs=1e-6)
     assert abs(t.budget["analyte_unbound"]) < 0.5
+
+
+def test_budget_splits_a_standard_metal_that_the_sample_also_holds():
+    """A back-titration with a zinc standard of a sample that holds zinc: the titrant's zinc is shared between the
+    standard and the sample's zinc in proportion, and the sample's part shows as co-titration."""
+    s = Sample(25, {"Ni": 2.5e-3, "Zn": 0.1e-3}, ("Ni",))
+    t = simulate(s, Method(8.3, "ammonia", "EDTA", 0.02, "PAN", mode="back", back_metal="Zn"))
+    assert t.budget["cotitration:Zn"] > 0.5
+    assert sum(t.budget.values()) == pytest.approx(t.error_percent, abs=1e-6)

@@ -218,7 +218,12 @@ def budget_parts(plan: Plan, eq: Equilibrium, point: int, dilution_mL: float, in
              if m not in ("unbound", standard) and m not in plan.sample.analyte}
     parts["titrant_unbound"] = 100.0 * held["unbound"] / A
     if standard is not None:
-        parts["standard_unbound"] = -100.0 * (standard_added_M - held[standard]) / A
+        # where the sample holds the standard's metal too, the titrant's share of it is split in proportion
+        in_sample = plan.sample.metals.get(standard, 0.0) * plan.sample.volume_mL / dilution_mL
+        from_sample = held[standard] * in_sample / (in_sample + standard_added_M) if in_sample > 0 else 0.0
+        if in_sample > 0 and standard not in plan.sample.analyte:
+            parts[f"cotitration:{standard}"] = 100.0 * from_sample / A
+        parts["standard_unbound"] = -100.0 * (standard_added_M - (held[standard] - from_sample)) / A
     parts["indicator_blank"] = -100.0 * on_indicator / A
     parts["analyte_unbound"] = -100.0 * (A - on_titrant - inert - on_indicator) / A
     return parts
