@@ -251,8 +251,39 @@ def bench_steps(scenario: Scenario, method: Method, t: Titration, recipe: list[s
                      f"{method.back_concentration:g} M {std} standard {colour}.")
     else:
         steps.append(f"Add {ind.name} ({ind.dose}) and titrate with {cT:g} M {titrant} {colour}.")
+    steps.append("Reagent blank: carry the same volume of deionised water through these steps with every reagent and "
+                 "subtract its titre from the sample's and the standard's (common practice).")
     steps.append("Calculate: " + formula + ".")
-    return steps
+    return [standardisation_step(scenario, method, t)] + steps
+
+
+def standardisation_step(scenario: Scenario, method: Method, t: Titration) -> str:
+    """How the titrant is standardised: a primary standard of the analyte (the data's ``primary_standards``), made up
+    to the sample's level and carried through the same steps with the same indicator dose."""
+    from .reagents import catalogue
+
+    sample = scenario.sample
+    prims = catalogue().primary_standards
+    parts = []
+    for a in sample.analyte:
+        p = prims.get(a)
+        if p is None:
+            parts.append(f"a standard solution of {a} of known concentration, {sample.metals[a] * 1000:.2g} mmol/L")
+        else:
+            grams = sample.metals[a] * 0.250 * p.molar_mass  # per 250 mL at the sample's level
+            parts.append(f"about {_two_sig(grams * 1000)} mg {p.substance} ({p.formula}), weighed to 0.1 mg, "
+                         f"{p.preparation}")
+    std = t.standardisation
+    cancels = (f" It cancels what the analyte alone shows (predicted {std.error_percent:+.2f} % by the same method)."
+               if std is not None and std.error_percent is not None else "")
+    return ("Standardise the titrant first, with the same indicator and dose: " + "; and ".join(parts)
+            + f", made up to 250 mL in a volumetric flask; pipette {sample.volume_mL:g} mL and carry it through the "
+            "steps below; c(titrant) = n(standard) / V(titrant at the end point), in duplicate (common practice)."
+            + cancels)
+
+
+def _two_sig(x: float) -> str:
+    return f"{float(f'{x:.2g}'):g}"
 
 
 @dataclass(frozen=True)

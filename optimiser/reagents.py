@@ -357,6 +357,7 @@ class Catalogue:
     indicators: dict[str, Indicator]
     standards: dict[str, Standard] = field(default_factory=dict)
     safety_rules: tuple[SafetyRule, ...] = ()
+    primary_standards: dict[str, PrimaryStandard] = field(default_factory=dict)
 
     def titrant(self, name: str) -> Titrant:
         return _pick(self.titrants, name, "titrant")
@@ -462,6 +463,26 @@ def _indicator(d: Mapping[str, Any]) -> Indicator:
                      (d["tolerated"] or {}).get("source"))
 
 
+@dataclass(frozen=True)
+class PrimaryStandard:
+    """What the titrant is standardised against for one analyte metal: the substance weighed and how it is dissolved."""
+
+    id: str
+    substance: str
+    formula: str
+    preparation: str
+    source: str
+
+    @property
+    def molar_mass(self) -> float:
+        """[g/mol] of the substance weighed."""
+        return molar_mass(self.formula)
+
+
+def _primary(d: Mapping[str, Any]) -> PrimaryStandard:
+    return PrimaryStandard(d["id"], d["substance"], d["formula"], d["preparation"], d["source"])
+
+
 def _standard(d: Mapping[str, Any]) -> Standard:
     return Standard(d["id"], d["name"], d["salt"], d["formula"], d["hazard"], tuple(d["cautions"]))
 
@@ -530,11 +551,14 @@ def catalogue() -> Catalogue:
         indicators=_built("indicators.yaml", None, _indicator),
         standards=_built("reagents.yaml", "standards", _standard),
         safety_rules=tuple(_built("reagents.yaml", "safety_rules", _rule).values()),
+        primary_standards=_built("reagents.yaml", "primary_standards", _primary),
     )
     # names that must resolve elsewhere: metal ids, ligand charges, the reagent ids of the safety rules
     _check_indicators(cat)
     for s in cat.standards.values():
         _check_metal(s.id, "reagents.yaml", f"standards/{s.id}", "id")
+    for p in cat.primary_standards.values():
+        _check_metal(p.id, "reagents.yaml", f"primary_standards/{p.id}", "id")
     _check_ligands(cat)
     _check_safety_rules(cat)
     return cat

@@ -95,7 +95,8 @@ def test_back_titration_words_and_titre(al):
     assert any(row.mode == "back (Zn)" for row in a.alternatives)
     titre = next(c for c in a.criteria if c.name == "Titre within the burette")
     assert titre.value == f"{report.fmt(max(t.endpoint_mL, t.excess_mL), 4)} mL" and titre.met
-    assert a.method.procedure[1].startswith(f"Add {t.excess_mL:.2f} mL of 0.02 M EDTA (an excess)")
+    assert a.method.procedure[0].startswith("Standardise the titrant first")
+    assert a.method.procedure[2].startswith(f"Add {t.excess_mL:.2f} mL of 0.02 M EDTA (an excess)")
 
 
 def test_log_K_table_holds_the_method_pH(bi):

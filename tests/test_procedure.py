@@ -104,7 +104,7 @@ def test_slow_analyte_gets_its_excess_and_boil_before_the_buffer(al_back):
     steps = _steps(sc, method, t)
     boil = next(k for k, x in enumerate(steps) if "boil" in x)
     buffer = next(k for k, x in enumerate(steps) if x.startswith("Buffer"))
-    assert boil < buffer and "(an excess)" in steps[boil] and "Zn standard" in steps[-2]
+    assert boil < buffer and "(an excess)" in steps[boil] and "Zn standard" in steps[-3]
 
 
 def test_the_procedure_reads_the_fact_not_the_assumption_text(al_back):
@@ -113,7 +113,7 @@ def test_the_procedure_reads_the_fact_not_the_assumption_text(al_back):
     assert any("boil" in x for x in _steps(sc, method, dataclasses.replace(t, findings=())))
     quick = _steps(sc, method, dataclasses.replace(t, slow_analytes=()))
     assert not any("boil" in x for x in quick)
-    assert "(an excess); add" in quick[-2]  # the excess then goes in after the buffer
+    assert "(an excess); add" in quick[-3]  # the excess then goes in after the buffer
 
 
 def test_direct_titration_steps_and_formula():
@@ -121,6 +121,8 @@ def test_direct_titration_steps_and_formula():
     method = Method(pH=5.5, buffer="acetate", buffer_total_M=0.1, titrant="EDTA", titrant_conc_M=0.02, indicator="xylenol_orange")
     t = simulate(Sample(25.0, {"Zn": 0.002}, ("Zn",)), method)
     steps = _steps(sc, method, t)
-    assert steps[-2].startswith("Add Xylenol orange") and "titrate with 0.02 M EDTA" in steps[-2]
-    assert "standard" not in " ".join(steps) and "boil" not in " ".join(steps)
+    assert steps[-3].startswith("Add Xylenol orange") and "titrate with 0.02 M EDTA" in steps[-3]
+    assert "back-titration" not in " ".join(steps) and "boil" not in " ".join(steps)
+    assert steps[0].startswith("Standardise the titrant first, with the same indicator and dose: about 33 mg zinc metal")
+    assert steps[-2].startswith("Reagent blank")
     assert result_formula(sc, method).startswith("c(Zn) [mmol/L] = 0.02 mol/L x V(titrant) [mL] / 25 mL x 1000")
