@@ -32,6 +32,8 @@ class Sample:
         [mol/L].
     temperature_C : float
         [degC].
+    acid_M : float
+        Strong acid the sample holds (an acid-preserved sample), as H+ [mol/L]; neutralised before the buffer.
     """
 
     volume_mL: float
@@ -39,6 +41,7 @@ class Sample:
     analyte: tuple[str, ...]
     ionic_strength_M: float = 0.1
     temperature_C: float = 25.0
+    acid_M: float = 0.0
 
     def __post_init__(self) -> None:
         db = database()
@@ -53,6 +56,8 @@ class Sample:
             if a not in metals:
                 raise InputError(f"analyte {a} has no concentration in the sample (metals given: {', '.join(metals)})")
         object.__setattr__(self, "analyte", analyte)
+        if not 0.0 <= self.acid_M <= 2.0:
+            raise InputError(f"the sample's acid must be between 0 and 2 mol/L of H+; got {self.acid_M}")
 
     @property
     def interferents(self) -> tuple[str, ...]:

@@ -242,6 +242,11 @@ def bench_steps(scenario: Scenario, method: Method, t: Titration, recipe: list[s
         steps.append(f"Add {t.excess_mL:.2f} mL of {cT:g} M {titrant} (an excess) to the sample before it is buffered "
                      "(it should be acidic, about pH 3); boil gently for 3-5 minutes and cool (common practice).")
     steps += [f"Add {m.amount} ({m.name}; {m.conc_M * 1000:.3g} mmol/L in the aliquot)." for m in masking]
+    if scenario.sample.acid_M > 0:
+        n_acid = scenario.sample.acid_M * V0  # mmol of H+ in the aliquot
+        steps.append(f"Neutralise the sample's own acid ({n_acid:.2g} mmol H+) first: about {n_acid / 1.0:.2g} mL of "
+                     "1 M sodium hydroxide, added slowly with swirling, so that the buffer keeps its full capacity "
+                     "(common practice).")
     steps.append(f"Buffer ({method.buffer_info.name}): " + "; ".join(recipe) + ".")
     colour = f"from {t.colour_change[0]} to {t.colour_change[1]}"
     if method.strategy.uses_standard:

@@ -298,7 +298,7 @@ def standard_sample(sample: Sample) -> Sample:
     """The primary standard the titrant is standardised against: the analyte alone, at the sample's concentrations,
     volume, ionic strength and temperature (titrated by the same method, with the same indicator dose)."""
     return Sample(sample.volume_mL, {a: sample.metals[a] for a in sample.analyte}, sample.analyte,
-                  sample.ionic_strength_M, sample.temperature_C)
+                  sample.ionic_strength_M, sample.temperature_C, sample.acid_M)
 
 
 def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161, pH_drift: bool = False,

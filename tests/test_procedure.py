@@ -126,3 +126,16 @@ def test_direct_titration_steps_and_formula():
     assert steps[0].startswith("Standardise the titrant first, with the same indicator and dose: about 33 mg zinc metal")
     assert steps[-2].startswith("Reagent blank")
     assert result_formula(sc, method).startswith("c(Zn) [mmol/L] = 0.02 mol/L x V(titrant) [mL] / 25 mL x 1000")
+
+
+def test_an_acid_preserved_sample_is_neutralised_before_the_buffer():
+    """A sample preserved with acid (20 mmol/L H+) has it neutralised before the buffer goes in, so that the buffer
+    keeps the capacity that holds the pH (common practice; the water standards' samples are acidified at sampling)."""
+    sc = parse(AL_BACK.replace("Al: 2 mmol/L", "Zn: 2 mmol/L"), "zn.yaml")
+    sc = dataclasses.replace(sc, sample=dataclasses.replace(sc.sample, acid_M=0.02))
+    method = Method(pH=5.5, buffer="acetate", buffer_total_M=0.1, titrant="EDTA", titrant_conc_M=0.02, indicator="xylenol_orange")
+    t = simulate(sc.sample, method)
+    steps = _steps(sc, method, t)
+    neutral = next(k for k, x in enumerate(steps) if x.startswith("Neutralise the sample's own acid (0.5 mmol H+)"))
+    buffer = next(k for k, x in enumerate(steps) if x.startswith("Buffer"))
+    assert neutral < buffer and "0.5 mL of 1 M sodium hydroxide" in steps[neutral]
