@@ -36,6 +36,22 @@ targets: {max_error_percent: 1.0}
 """
 
 
+# aluminium by back-titration (slow with EDTA: excess, boil, then a zinc standard); used by several test modules
+AL_BACK = """
+name: al-back
+sample: {volume: 25 mL}
+analyte: {metals: {Al: 2 mmol/L}}
+titrant: {concentration: 0.02 M}
+search:
+  pH: [5.0, 6.0]
+  titrants: [EDTA]
+  buffers: [acetate]
+  indicators: [xylenol_orange]
+  modes: [back]
+  back_metals: [Zn]
+"""
+
+
 @pytest.fixture()
 def tiny_scenario_text() -> str:
     return TINY_SCENARIO

@@ -6,6 +6,8 @@ from pathlib import Path
 
 import pytest
 
+from conftest import AL_BACK
+
 from optimiser import report
 from optimiser.analysis import analyse, analyte_feasibility, safety
 from optimiser.conditional import Conditions, conditional_constant
@@ -28,19 +30,6 @@ search:
   modes: [direct]
 """
 
-AL_BACK = """
-name: al-back
-sample: {volume: 25 mL}
-analyte: {metals: {Al: 2 mmol/L}}
-titrant: {concentration: 0.02 M}
-search:
-  pH: [5.0, 6.0]
-  titrants: [EDTA]
-  buffers: [acetate]
-  indicators: [xylenol_orange]
-  modes: [back]
-  back_metals: [Zn]
-"""
 
 CHEMISTRY = {"conditional", "constants", "equilibrium", "kernel", "titration", "readout", "reagents", "search", "method",
              "pretreatment", "strategies", "findings", "procedure", "units", "scenario", "data"}

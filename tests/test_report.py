@@ -5,6 +5,8 @@ import re
 
 import pytest
 
+from conftest import AL_BACK
+
 from optimiser import report
 from optimiser.analysis import analyse
 from optimiser.report import FIGURES, SECTIONS, fmt, signed
@@ -118,19 +120,7 @@ search:
 def test_back_titration_procedure_adds_the_excess_before_the_buffer():
     """Al reacts slowly with EDTA: the excess goes into the acidic sample and is boiled before buffering (common
     practice for the Al back-titration), then the buffer, then the Zn standard."""
-    sc = parse("""
-name: al-back
-sample: {volume: 25 mL}
-analyte: {metals: {Al: 2 mmol/L}}
-titrant: {concentration: 0.02 M}
-search:
-  pH: [5.0, 6.0]
-  titrants: [EDTA]
-  buffers: [acetate]
-  indicators: [xylenol_orange]
-  modes: [back]
-  back_metals: [Zn]
-""", "al.yaml")
+    sc = parse(AL_BACK, "al.yaml")
     r = run_search(sc, seed=1, pop_size=12, n_gen=4, with_robustness=False)
     steps = analyse(r).method.procedure
     excess = next(k for k, x in enumerate(steps) if "(an excess)" in x)
