@@ -382,9 +382,9 @@ def _cmd_run(a) -> int:
               + (", ".join(f"{m} {d * 1000:.3g} mM" for m, d in c.masking) or "no masking")
               + f", {strategy(c.mode).describe(c)}")
         t = result.recommended_titration
-        print(f"  end point {t.endpoint_mL:.2f} mL, error {t.error_percent:+.2f} %, sharpness {t.sharpness_mL:.3f} mL, "
+        print(f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {t.standardised_error_percent:+.2f} %, sharpness {t.sharpness_mL:.3f} mL, "
               f"robust pH {result.robust_pH[0]:.2f}-{result.robust_pH[1]:.2f}" if result.robust_pH else
-              f"  end point {t.endpoint_mL:.2f} mL, error {t.error_percent:+.2f} %")
+              f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {t.standardised_error_percent:+.2f} %")
         print("\n".join(_budget_lines(t)))
     print(f"  report: {report_path}")
     print(f"  data:   {json_path}")

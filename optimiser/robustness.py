@@ -17,7 +17,8 @@ SCAN_POINTS = 81  # coarse curve points per scanned method
 
 
 def robustness(scenario: Scenario, e: Evaluation, half_width: float = 1.0, step: float = 0.05):
-    """Scan pH (and each masking dose) around a method; the windows where |error| stays within the target.
+    """Scan pH (and each masking dose) around a method; the windows where |error| after standardisation stays within
+    the target: the titrant is standardised once, at the method's set-point, and the sample titrated off it.
 
     Parameters
     ----------
@@ -38,7 +39,9 @@ def robustness(scenario: Scenario, e: Evaluation, half_width: float = 1.0, step:
     grid = grid[(grid >= max(0.0, lo)) & (grid <= min(14.0, hi))]
     grid = np.union1d(grid, [c.pH])
     methods = [replace(c.method(scenario), pH=float(p)) for p in grid]
-    errs = _errors(scenario, methods)
+    std = e.titration.standardisation if e.titration is not None else None
+    e_std = std.error_percent if std is not None and std.error_percent is not None else 0.0
+    errs = _errors(scenario, methods, e_std)
     pH_window = window(grid, errs, c.pH, target)
     doses = {}
     dose_scans = {}
@@ -50,7 +53,7 @@ def robustness(scenario: Scenario, e: Evaluation, half_width: float = 1.0, step:
         for x in lg:
             mask = tuple((b, 10 ** x if b == a else dd) for b, dd in c.masking)
             ms.append(replace(c.method(scenario), masking=mask))
-        de = _errors(scenario, ms)
+        de = _errors(scenario, ms, e_std)
         dose_scans[a] = (10 ** lg, de)
         w = window(lg, de, np.log10(d), target)
         if w is not None:
@@ -58,15 +61,15 @@ def robustness(scenario: Scenario, e: Evaluation, half_width: float = 1.0, step:
     return pH_window, doses, (grid, errs), dose_scans
 
 
-def _errors(scenario: Scenario, methods: Sequence[Method]) -> np.ndarray:
+def _errors(scenario: Scenario, methods: Sequence[Method], e_std: float) -> np.ndarray:
     errors: list = []
     sims = simulate_many(scenario.sample, methods, n_points=SCAN_POINTS, errors=errors)
     out = []
-    for t in sims:
+    for t in sims:  # the error left after the titrant was standardised at the method's set-point
         if t is None or t.error_percent is None or t.blocked_by or not t.indicator_usable:
             out.append(np.nan)
         else:
-            out.append(t.error_percent)
+            out.append(((1 + t.error_percent / 100) / (1 + e_std / 100) - 1) * 100)
     return np.array(out)
 
 
