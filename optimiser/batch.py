@@ -14,10 +14,10 @@ from pathlib import Path
 from typing import Any
 
 from .equilibrium import warm_up
-from .errors import OptimiserError
+from .errors import OptimiserError, printable
 from .reagents import HAZARD_NAMES
-from .report import DEFAULT_FORMAT, safe_name
-from .results import dumps, to_json, write_atomic
+from .report import DEFAULT_FORMAT, report_base
+from .results import dumps, to_json, write_together
 from .strategies import strategy
 
 
@@ -99,7 +99,8 @@ def _fmt(x, nd=2) -> str:
 
 def index_html(rows: list[BatchRow]) -> str:
     """The side-by-side comparison page (self-contained, links relative to the output folder)."""
-    e = html.escape
+    def e(text: str) -> str:  # escaped for HTML, with no control or direction-override character left raw
+        return html.escape(printable(text))
     body = []
     for r in rows:
         link = f'<a href="{e(r.html)}">{e(r.name)}</a>' if r.ok and r.html else e(r.name)
@@ -132,29 +133,25 @@ def summary_csv(rows: list[BatchRow]) -> str:
     w.writerow(["scenario", "source", "status", "recommended_method", "standardised_error_percent", "largest_error_part",
                 "selectivity_margin_log", "hazard", "report", "json", "message", "seconds"])
     for r in rows:
-        w.writerow([r.name, r.source, r.status, r.method, _fmt(r.error_percent, 4), r.largest_part, _fmt(r.margin, 3),
-                    r.hazard, r.html, r.json, r.message, f"{r.seconds:.2f}"])
+        w.writerow([printable(r.name), printable(r.source), r.status, r.method, _fmt(r.error_percent, 4),
+                    printable(r.largest_part), _fmt(r.margin, 3), r.hazard, r.html, r.json, printable(r.message),
+                    f"{r.seconds:.2f}"])
     return buf.getvalue()
 
 
 def _progress(done: int, total: int, name: str) -> None:
     width = 24
     filled = int(width * done / max(total, 1))
-    sys.stderr.write(f"\r[{'#' * filled}{'-' * (width - filled)}] {done}/{total} scenarios  {name[:40]:<40}")
+    sys.stderr.write(f"\r[{'#' * filled}{'-' * (width - filled)}] {done}/{total} scenarios  {printable(name, 37):<40}")
     sys.stderr.flush()
 
 
 def _unique_bases(paths: list[Path]) -> list[str]:
-    """Report names after the scenario files, made unique within the batch (name, name-2, ...)."""
-    bases, seen = [], set()
+    """Report names after the scenario files, made unique within the batch (name, name-2, ...; the naming rule of
+    :func:`optimiser.report.report_base`)."""
+    bases: list[str] = []
     for p in paths:
-        b = stem = safe_name(Path(p).stem)
-        k = 2
-        while b in seen:
-            b = f"{stem}-{k}"
-            k += 1
-        seen.add(b)
-        bases.append(b)
+        bases.append(report_base(Path(p).stem, bases))
     return bases
 
 
@@ -184,6 +181,6 @@ def run_batch(paths: list[Path], out_dir: Path, jobs: int | None = None, seed: i
     if progress:
         sys.stderr.write("\n")
     ordered = [rows[k] for k in range(len(paths))]
-    write_atomic(out_dir / "index.html", index_html(ordered))
-    write_atomic(out_dir / "summary.csv", summary_csv(ordered))
+    # together, the index last: a new index always has its new summary beside it
+    write_together([(out_dir / "summary.csv", summary_csv(ordered)), (out_dir / "index.html", index_html(ordered))])
     return ordered

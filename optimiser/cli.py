@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import re
 import sys
 from collections.abc import Sequence
 from pathlib import Path
@@ -14,7 +15,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .errors import InputError, OptimiserError
+from .errors import InputError, OptimiserError, printable, quoted
 from .strategies import strategy_ids
 
 PROG = "optimiser"
@@ -25,21 +26,39 @@ class _Parser(argparse.ArgumentParser):
         raise InputError(f"{message} (see '{self.prog} --help')")
 
 
-def _pair(text: str, what: str) -> tuple[str, float]:
-    from .units import molarity
+# A concentration on the command line, as in a scenario's reagent concentrations: a bare number is mol/L.
+CONC_HELP = "a bare number is mol/L; or with a unit: 0.1M, 10 mM, 5 g/L"
+
+
+def _pair(text: str, what: str, zero_ok: bool = False) -> tuple[str, float]:
+    """NAME=CONCENTRATION, the concentration within the allowed range (:func:`optimiser.units.reagent_M`)."""
+    from .units import reagent_M
     if "=" not in text:
-        raise InputError(f"{what} must be NAME=CONCENTRATION, e.g. NH3=0.1M; got {text!r}")
-    name, conc = text.split("=", 1)
-    return name.strip(), molarity(conc.strip(), f"concentration of {name.strip()}")
+        raise InputError(f"{what} must be NAME=CONCENTRATION, e.g. NH3=0.1M; got {quoted(text)}")
+    name, conc = (x.strip() for x in text.split("=", 1))
+    if not name:
+        raise InputError(f"{what} {quoted(text)} has no name before '='; allowed: NAME=CONCENTRATION, e.g. NH3=0.1M")
+    return name, reagent_M(conc, f"{what} {printable(name, 40)}", zero_ok)
 
 
 def _number(text: str, what: str, lo: float | None = None, hi: float | None = None) -> float:
     try:
         v = float(text)
-    except ValueError:
-        raise InputError(f"{what} must be a number; got {text!r}") from None
+    except (ValueError, OverflowError):
+        raise InputError(f"{what} must be a number; got {quoted(text)}") from None
     if not np.isfinite(v) or (lo is not None and v < lo) or (hi is not None and v > hi):
-        raise InputError(f"{what} must be between {lo} and {hi}; got {text!r}")
+        raise InputError(f"{what} must be between {lo:g} and {hi:g}; got {quoted(text)}")
+    return v
+
+
+def _integer(text: str, what: str, lo: int, hi: int) -> int:
+    """A whole number written as one ("2.5", "1e3" and "" refused, not rounded) from ``lo`` to ``hi``."""
+    t = text.strip()
+    if not re.fullmatch(r"[+-]?\d{1,12}", t):
+        raise InputError(f"{what} must be a whole number from {lo} to {hi}; got {quoted(text)}")
+    v = int(t)
+    if not lo <= v <= hi:
+        raise InputError(f"{what} must be a whole number from {lo} to {hi}; got {quoted(text)}")
     return v
 
 
@@ -59,10 +78,12 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("metal")
     c.add_argument("--titrant", help="the titrant (default: the first in the data, EDTA)")
     c.add_argument("--pH", nargs="+", required=True, metavar="PH")
-    c.add_argument("--ligand", action="append", default=[], metavar="NAME=CONC", help="total (analytical) ligand concentration, e.g. NH3=0.1M")
-    c.add_argument("--ionic-strength", default="0.1", metavar="M")
-    c.add_argument("--temperature", default="25", metavar="DEGC")
-    c.add_argument("--complex", metavar="CONC", help="total concentration of the complex MY; prints the free metal")
+    c.add_argument("--ligand", action="append", default=[], metavar="NAME=CONC",
+                   help=f"total (analytical) ligand concentration, e.g. NH3=0.1M or ammonia=0.1 ({CONC_HELP})")
+    c.add_argument("--ionic-strength", default="0.1", metavar="M", help="mol/L (default 0.1)")
+    c.add_argument("--temperature", default="25", metavar="DEGC", help="degC (default 25); or with K")
+    c.add_argument("--complex", metavar="CONC",
+                   help=f"total concentration of the complex MY; prints the free metal ({CONC_HELP})")
     c.add_argument("--pH-scale", default="activity", choices=("activity", "concentration"))
     c.add_argument("--json", action="store_true")
 
@@ -75,28 +96,30 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--pH", required=True)
     s.add_argument("--titrant", required=True)
     s.add_argument("--indicator", required=True)
-    s.add_argument("--masking", action="append", default=[], metavar="NAME=CONC")
-    s.add_argument("--buffer", metavar="NAME[=CONC]", help="buffer and its total ligand concentration (default: one that holds the pH)")
+    s.add_argument("--masking", action="append", default=[], metavar="NAME=CONC",
+                   help=f"a masking agent and its concentration in the aliquot ({CONC_HELP})")
+    s.add_argument("--buffer", metavar="NAME[=CONC]",
+                   help=f"buffer and its total ligand concentration (default: one that holds the pH; {CONC_HELP})")
     s.add_argument("--mode", default="direct", choices=strategy_ids(), help="how the titration is run")
     s.add_argument("--back-metal", default="Zn", metavar="METAL",
                    help="the back-titration standard (one of the standards in the data: Zn, Mg)")
-    s.add_argument("--titrant-conc", metavar="M", help="override the scenario's titrant concentration")
+    s.add_argument("--titrant-conc", metavar="M", help=f"override the scenario's titrant concentration ({CONC_HELP})")
     s.add_argument("--json", action="store_true")
 
     r = sub.add_parser("run", help="search a scenario (the built-in demo by default) and write its report")
     r.add_argument("scenario", nargs="?")
-    r.add_argument("--out", default="reports", metavar="DIR")
-    r.add_argument("--seed", default="1", metavar="N")
+    r.add_argument("--out", default="reports", metavar="DIR", help="output folder (created; checked writable first)")
+    r.add_argument("--seed", default="1", metavar="N", help="a whole number, 0 to 2**31-1 (default 1)")
     _format_option(r)
 
-    ch = sub.add_parser("check", help="validate scenario files only")
+    ch = sub.add_parser("check", help="validate scenario files only (every file reported; exit 2 if any is bad)")
     ch.add_argument("scenarios", nargs="+", metavar="SCENARIO")
 
     b = sub.add_parser("batch", help="run every scenario in files and folders, in parallel")
     b.add_argument("paths", nargs="+", metavar="PATH")
-    b.add_argument("--out", default="reports", metavar="DIR")
-    b.add_argument("--jobs", metavar="N")
-    b.add_argument("--seed", default="1", metavar="N")
+    b.add_argument("--out", default="reports", metavar="DIR", help="output folder (created; checked writable first)")
+    b.add_argument("--jobs", metavar="N", help="worker processes, a whole number 1-256 (default: one per core)")
+    b.add_argument("--seed", default="1", metavar="N", help="a whole number, 0 to 2**31-1 (default 1)")
     _format_option(b)
     return p
 
@@ -104,37 +127,45 @@ def build_parser() -> argparse.ArgumentParser:
 def _conditional_inputs(a):
     """The metal, pH values, ligand totals, conditions and titrant of ``optimiser conditional``, checked."""
     from .conditional import Conditions, check_pH
-    from .constants import database
+    from .constants import IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C, database
     from .errors import UnknownNameError
-    from .reagents import catalogue
-    from .units import molarity, temperature_C
+    from .reagents import catalogue, ligand_id
+    from .units import in_range, molarity, reagent_M, temperature_C
     db = database()
     metal = db.metal(a.metal)
     pH = check_pH([_number(x, "pH", 0, 14) for x in a.pH])
-    ligands = dict(_pair(x, "--ligand") for x in a.ligand)
-    for lig in ligands:
-        if lig not in db.charges or lig in db.metals or lig == "H+":
-            raise UnknownNameError("ligand", lig, [x for x in db.charges if x not in db.metals and x != "H+"])
-    cond = Conditions(molarity(a.ionic_strength, "ionic strength"), temperature_C(a.temperature), a.pH_scale)
+    ligands: dict[str, float] = {}
+    for name, conc in (_pair(x, "--ligand", zero_ok=True) for x in a.ligand):
+        lig = ligand_id(name)
+        if lig in ligands:
+            raise InputError(f"--ligand {lig} is given twice; allowed: each ligand once")
+        ligands[lig] = conc
+    I = in_range(molarity(a.ionic_strength, "--ionic-strength"), 0.0, IONIC_STRENGTH_MAX_M,
+                 "the ionic strength (--ionic-strength)", "mol/L")
+    T = in_range(temperature_C(a.temperature), *TEMPERATURE_RANGE_C, "the temperature (--temperature)", "degC")
+    a.complex_M = reagent_M(a.complex, "--complex") if a.complex is not None else None
+    cond = Conditions(I, T, a.pH_scale)
     if a.titrant is None:
         return metal, pH, ligands, cond, catalogue().default_ids("titrants")[0]
-    try:  # a titrant of the catalogue in any case ("edta"); any other ligand as given
+    try:  # a titrant of the catalogue in any spelling ("edta"); any other ligand by its id or an alias
         titrant = catalogue().titrant(a.titrant).id
-    except UnknownNameError:
-        titrant = a.titrant
+    except UnknownNameError as exc:
+        try:
+            titrant = ligand_id(a.titrant)
+        except UnknownNameError:
+            raise exc from None
     return metal, pH, ligands, cond, titrant
 
 
 def _conditional_document(a, metal, pH, ligands, cond, cc) -> dict:
     from .conditional import free_metal_in_complex
-    from .units import molarity
     out = {"metal": metal, "titrant": cc.titrant, "pH": pH.tolist(), "log_alpha_Y": cc.log_alpha_Y.tolist(),
            "log_alpha_M": cc.log_alpha_M.tolist(), "log_K": np.broadcast_to(cc.log_K, pH.shape).tolist(),
            "log_K_conditional": cc.log_K_conditional.tolist(), "log_alpha_MY": cc.log_alpha_MY.tolist(),
            "ionic_strength_M": float(cond.ionic_strength_M), "temperature_C": float(cond.temperature_C),
            "ligands_total_M": ligands, "pH_scale": a.pH_scale}
-    if a.complex is not None:
-        C = molarity(a.complex, "--complex")
+    if a.complex_M is not None:
+        C = a.complex_M
         out["free_metal_M"] = (free_metal_in_complex(cc.log_K_conditional, C) / 10 ** cc.log_alpha_M).tolist()
         out["complex_M"] = C
     if cc.uncorrected_temperature:
@@ -186,16 +217,19 @@ def _print_catalogue(db, cat) -> None:
 
 def _reagent_key(name: str, db, cat) -> str | None:
     """The species whose constants a reagent name stands for (a titrant, a buffer's or masking agent's ligand, an
-    indicator, or a ligand by its own name); None if the name is none of these."""
-    for table, attr in ((cat.titrants, None), (cat.buffers, "ligand"), (cat.masking, "ligand")):
-        for ident, obj in table.items():
-            if ident.lower() == name.lower():
-                return getattr(obj, attr) if attr else ident
+    indicator, or a ligand by its own name or an alias: any spelling the data knows); None if the name is none of
+    these."""
+    from .reagents import ligand_id
+    for lookup, attr in ((cat.titrant, None), (cat.buffer, "ligand"), (cat.masking_agent, "ligand"), (cat.indicator, None)):
+        try:
+            obj = lookup(name)
+        except InputError:
+            continue
+        return getattr(obj, attr) if attr else obj.id
     try:
-        return cat.indicator(name).id
+        return ligand_id(name)
     except InputError:
-        pass
-    return name if name in db.charges else None
+        return None
 
 
 def _constants_key(name: str, db, cat) -> str:
@@ -270,12 +304,12 @@ def _simulate_buffer(a, pH: float):
     """The buffer of ``optimiser simulate`` and its total: as given, or the first that holds the pH."""
     from .reagents import catalogue
     from .search import buffers_for
-    from .units import molarity
+    from .units import reagent_M
     cat = catalogue()
     if a.buffer:
         name, _, conc = a.buffer.partition("=")
         buf = cat.buffer(name.strip())
-        return buf, (molarity(conc, "buffer concentration") if conc else buf.default_total_M)
+        return buf, (reagent_M(conc, f"--buffer {buf.id}", zero_ok=True) if conc.strip() else buf.default_total_M)
     fits = buffers_for(pH, list(cat.buffers))
     if not fits:
         raise InputError(f"no buffer in the database holds pH {pH:g}; give one with --buffer NAME=CONC "
@@ -286,10 +320,12 @@ def _simulate_buffer(a, pH: float):
 
 def _simulate_method(a, sc):
     from .titration import Method
-    from .units import molarity
+    from .units import in_range, molarity
     pH = _number(a.pH, "--pH", 0, 14)
     buf, total = _simulate_buffer(a, pH)
-    cT = molarity(a.titrant_conc, "--titrant-conc") if a.titrant_conc else sc.titrant_conc_M
+    cT = sc.titrant_conc_M
+    if a.titrant_conc is not None:
+        cT = in_range(molarity(a.titrant_conc, "--titrant-conc"), 1e-4, 1.0, "--titrant-conc", "mol/L")
     return Method(pH=pH, buffer=buf.id, buffer_total_M=total, titrant=a.titrant, titrant_conc_M=cT,
                   masking=tuple(_pair(x, "--masking") for x in a.masking), indicator=a.indicator, mode=a.mode,
                   back_metal=a.back_metal)
@@ -336,8 +372,8 @@ def _cmd_simulate(a) -> int:
     from .results import dumps, titration_json
     from .titration import simulate
     sc = _load_scenario(a.scenario)
+    method = _simulate_method(a, sc)  # every input checked before the solver is loaded
     _solver_ready()
-    method = _simulate_method(a, sc)
     t = simulate(sc.sample, method, pH_drift=True, standardise=True)
     if a.json:
         sys.stdout.write(dumps(titration_json(t)))
@@ -350,16 +386,18 @@ def _cmd_simulate(a) -> int:
 def _cmd_run(a) -> int:
     from . import report
     from .analysis import analyse
-    from .results import dumps, to_json
+    from .results import dumps, to_json, writable_folder
     from .search import run_search
     from .strategies import strategy
     sc = _load_scenario(a.scenario)
-    seed = int(_number(a.seed, "--seed", 0, 2 ** 31 - 1))
+    seed = _integer(a.seed, "--seed", 0, 2 ** 31 - 1)
+    writable_folder(Path(a.out), "--out")  # before the search, not after it
     tty = sys.stderr.isatty()
     _solver_ready()
+    name = printable(sc.name)
 
     def progress(gen, n_gen, evals):
-        msg = f"searching {sc.name}: generation {gen}/{n_gen}, {evals} evaluations"
+        msg = f"searching {name}: generation {gen}/{n_gen}, {evals} evaluations"
         sys.stderr.write(("\r" + msg) if tty else (msg + "\n" if gen in (1, n_gen) or gen % 5 == 0 else ""))
         sys.stderr.flush()
     result = run_search(sc, seed=seed, progress=progress)
@@ -369,7 +407,7 @@ def _cmd_run(a) -> int:
     report_path, json_path = report.write(result, Path(a.out), dumps(to_json(result)), report_format=a.format,
                                           analysis=analyse(result))
     e = result.recommended
-    print(f"{sc.name}: {result.evaluations} evaluations in {result.wall_time_s:.1f} s (seed {seed})")
+    print(f"{name}: {result.evaluations} evaluations in {result.wall_time_s:.1f} s (seed {seed})")
     if not result.meets_criteria:
         print("  NO METHOD MEETS THE CRITERIA" + (": the closest compromise below is not a procedure to follow"
                                                   if e is not None else ""))
@@ -386,8 +424,8 @@ def _cmd_run(a) -> int:
               f"robust pH {result.robust_pH[0]:.2f}-{result.robust_pH[1]:.2f}" if result.robust_pH else
               f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {t.standardised_error_percent:+.2f} %")
         print("\n".join(_budget_lines(t)))
-    print(f"  report: {report_path}")
-    print(f"  data:   {json_path}")
+    print(f"  report: {printable(str(report_path))}")
+    print(f"  data:   {printable(str(json_path))}")
     return 0 if result.meets_criteria else 1
 
 
@@ -401,35 +439,45 @@ def _budget_lines(t) -> list[str]:
              "by cause, as simulated / after standardisation:"]
     for k in sorted(std, key=lambda k: -abs(std[k])):
         if max(abs(std[k]), abs(t.budget.get(k, 0.0))) >= 5e-4:
-            lines.append(f"    {budget_label(k)}: {t.budget.get(k, 0.0):+.3f} % / {std[k]:+.3f} %")
+            lines.append(f"    {printable(budget_label(k))}: {t.budget.get(k, 0.0):+.3f} % / {std[k]:+.3f} %")
     return lines
 
 
 def _cmd_check(a) -> int:
+    """Every file is checked and reported (ok on stdout, each error on its own line on stderr); 2 if any is bad."""
     from .scenario import load
+    bad = 0
     for p in a.scenarios:
-        sc = load(p)
-        print(f"{p}: ok ({sc.name}; analyte {sc.analyte_label}; {len(sc.sample.interferents)} interferents)")
-    return 0
+        try:
+            sc = load(p)
+        except InputError as exc:
+            bad += 1
+            print(f"{PROG}: error: {printable(str(exc))}", file=sys.stderr)
+            continue
+        print(f"{printable(p)}: ok ({printable(sc.name)}; analyte {printable(sc.analyte_label)}; "
+              f"{len(sc.sample.interferents)} interferents)")
+    return 2 if bad else 0
 
 
 def _cmd_batch(a) -> int:
     from .batch import run_batch
+    from .results import writable_folder
     from .scenario import find_scenarios
+    jobs = _integer(a.jobs, "--jobs", 1, 256) if a.jobs is not None else None
+    seed = _integer(a.seed, "--seed", 0, 2 ** 31 - 1)
     paths = find_scenarios(a.paths)
-    missing = [str(p) for p in paths if not p.exists()]
+    missing = [printable(str(p)) for p in paths if not p.exists()]
     if missing:
         raise InputError(f"no such file or folder: {', '.join(missing)}")
     if not paths:
         raise InputError("no scenario files (*.yaml, *.yml) in the paths given")
-    jobs = int(_number(a.jobs, "--jobs", 1, 256)) if a.jobs else None
-    seed = int(_number(a.seed, "--seed", 0, 2 ** 31 - 1))
+    writable_folder(Path(a.out), "--out")
     _solver_ready()
     rows = run_batch(paths, Path(a.out), jobs=jobs, seed=seed, progress=True, report_format=a.format)
     for r in rows:
-        print(f"{r.status.upper():<9} {r.name}: {r.method if r.ok else r.message}")
-    print(f"index: {Path(a.out) / 'index.html'}")
-    print(f"summary: {Path(a.out) / 'summary.csv'}")
+        print(f"{r.status.upper():<9} {printable(r.name)}: {printable(r.method if r.ok else r.message)}")
+    print(f"index: {printable(str(Path(a.out) / 'index.html'))}")
+    print(f"summary: {printable(str(Path(a.out) / 'summary.csv'))}")
     return 0 if all(r.status == "ok" for r in rows) else 1
 
 
@@ -447,7 +495,7 @@ def main(argv: Sequence[str] | None = None) -> int:
             return 2
         return COMMANDS[args.command](args)
     except OptimiserError as exc:
-        print(f"{PROG}: error: {exc}", file=sys.stderr)
+        print(f"{PROG}: error: {printable(str(exc))}", file=sys.stderr)
         return exc.exit_status
     except BrokenPipeError:  # output piped into head and the like
         try:
@@ -461,7 +509,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     except Exception as exc:
         if os.environ.get("OPTIMISER_DEBUG"):
             raise
-        print(f"{PROG}: internal error ({type(exc).__name__}: {exc}); set OPTIMISER_DEBUG=1 for the traceback", file=sys.stderr)
+        print(f"{PROG}: internal error ({type(exc).__name__}: {printable(str(exc), 300)}); set OPTIMISER_DEBUG=1 for the "
+              "traceback", file=sys.stderr)
         return 1
 
 

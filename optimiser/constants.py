@@ -263,7 +263,8 @@ def _resolve(name: str, table: Mapping[str, dict], kind: str) -> str:
         spellings = [ident, *row.get("aliases", [])]
         if key in {s.lower().replace(" ", "") for s in spellings}:
             return ident
-    raise UnknownNameError(kind, name, [k for k, v in table.items() if not v.get("internal")])
+    raise UnknownNameError(kind, name, [k for k, v in table.items() if not v.get("internal")],
+                           {a: k for k, v in table.items() if not v.get("internal") for a in v.get("aliases", [])})
 
 
 def _float_or_none(text: str | None) -> float | None:

@@ -273,17 +273,20 @@ _NUMBER_PAIR = Key(list, items=Key(float))
 _SOLUTION = Key(dict, keys={"name": Key(str), "molarity_M": Key(float)})
 # Is the reagent in the search space of a scenario that does not list its kind? (data owns the defaults)
 _SEARCH_DEFAULT = Key(bool)
+# Other spellings a user may type for an entry (British spellings, common names); matched ignoring case and the
+# difference between space, - and _.
+_ALIASES = optional(list, [], items=Key(str))
 
 RECIPE_KINDS = ("salt_plus_base_solution", "salt_plus_acid_solution", "base_plus_acid_solution", "strong_base", "strong_acid")
 
 SCHEMAS: dict[tuple[str, str | None], Schema] = {
     ("metals.yaml", None): {
-        "id": Key(str), "element": Key(str), "charge": Key(int), "name": Key(str), "aliases": optional(list, [], items=Key(str)),
+        "id": Key(str), "element": Key(str), "charge": Key(int), "name": Key(str), "aliases": _ALIASES,
         "internal": optional(bool, False), "binds_titrant": optional(bool, True), "slow_with_titrant": optional(bool, False)},
-    ("reagents.yaml", "ligands"): {"id": Key(str), "charge": Key(int)},
+    ("reagents.yaml", "ligands"): {"id": Key(str), "charge": Key(int), "aliases": _ALIASES},
     ("reagents.yaml", "titrants"): {
         "id": Key(str), "name": Key(str), "charge": Key(int), "formula": Key(str), "salt": Key(str), "hazard": _HAZARD,
-        "cautions": _TEXTS, "complexity": Key(float), "search_default": _SEARCH_DEFAULT},
+        "cautions": _TEXTS, "complexity": Key(float), "search_default": _SEARCH_DEFAULT, "aliases": _ALIASES},
     ("reagents.yaml", "buffers"): {
         "id": Key(str), "name": Key(str), "ligand": Key(str, nullable=True), "pH_range": _NUMBER_PAIR,
         "recipe": Key(dict, keys={
@@ -291,7 +294,7 @@ SCHEMAS: dict[tuple[str, str | None], Schema] = {
             "acid_formula": optional(str), "base_formula": optional(str),
             "acid_solution": optional(dict, keys=_SOLUTION.keys), "base_solution": optional(dict, keys=_SOLUTION.keys)}),
         "strong_alkali": optional(bool, False), "default_total_M": optional(float, 0.0), "hazard": _HAZARD,
-        "cautions": _TEXTS, "search_default": _SEARCH_DEFAULT},
+        "cautions": _TEXTS, "search_default": _SEARCH_DEFAULT, "aliases": _ALIASES},
     ("reagents.yaml", "masking"): {
         "id": Key(str), "name": Key(str), "ligand": Key(str), "formula": Key(str), "salt": Key(str),
         "density_g_mL": optional(float), "min_pH": Key(float), "dose_range_M": _NUMBER_PAIR, "hazard": _HAZARD,
@@ -299,7 +302,7 @@ SCHEMAS: dict[tuple[str, str | None], Schema] = {
             "to": Key(str), "mol_reagent_per_mol_metal": Key(float), "note": Key(str)})),
         "masks": optional(dict, {}, items=Key(dict, keys={
             "pH_range": _NUMBER_PAIR, "min_ratio": Key(float), "note": Key(str)})),
-        "cautions": _TEXTS, "search_default": _SEARCH_DEFAULT},
+        "cautions": _TEXTS, "search_default": _SEARCH_DEFAULT, "aliases": _ALIASES},
     ("reagents.yaml", "standards"): {
         "id": Key(str), "name": Key(str), "salt": Key(str), "formula": Key(str), "hazard": _HAZARD, "cautions": _TEXTS},
     ("reagents.yaml", "primary_standards"): {
@@ -309,7 +312,7 @@ SCHEMAS: dict[tuple[str, str | None], Schema] = {
         "name": Key(str), "when_all": Key(list, items=Key(str)), "unless_any": optional(list, [], items=Key(str)),
         "hazard": _HAZARD, "cautions": _TEXTS},
     ("indicators.yaml", None): {
-        "id": Key(str), "name": Key(str), "aliases": optional(list, [], items=Key(str)),
+        "id": Key(str), "name": Key(str), "aliases": _ALIASES,
         "forms": Key(dict, items=Key(str)), "complex_colours": Key(dict, items=Key(str)),
         "usable_pH": _NUMBER_PAIR, "blocked_by": Key(list, items=Key(str)), "needs_Mg_for_Ca": Key(bool),
         "conc_M": Key(float), "dose": Key(str), "formula": Key(str), "hazard": _HAZARD,

@@ -8,7 +8,66 @@ constructor's own arguments), so that an error raised in a batch worker reaches 
 """
 from __future__ import annotations
 
-from collections.abc import Iterable
+import difflib
+import re
+import unicodedata
+from collections.abc import Iterable, Mapping
+
+# Characters a terminal or a browser would act on rather than show: C0 and C1 controls (ANSI escapes start with
+# ESC), line and paragraph separators, and the bidirectional embeddings, overrides, isolates and marks (an RLO can
+# make "exe.txt" read as "txt.exe").
+_UNSAFE = re.compile("[\x00-\x1f\x7f-\x9f\u061c\u200e\u200f\u2028-\u202e\u2066-\u2069\ufeff\ufff9-\ufffb]")
+
+
+def _escape(ch: str) -> str:
+    o = ord(ch)
+    return f"\\x{o:02x}" if o < 0x100 else f"\\u{o:04x}"
+
+
+def printable(text: str, limit: int | None = None) -> str:
+    r"""``text`` safe to print on a terminal or in a page: every control, separator or direction-override character
+    (and every other invisible format character or lone surrogate) written as an escape (``\x1b``, ``\u202e``);
+    longer than ``limit`` characters, cut with "...".
+
+    >>> print(printable("tiny\x1b[2Jred\u202e"))
+    tiny\x1b[2Jred\u202e
+    """
+    if limit is not None and len(text) > limit:
+        text = text[:limit] + "..."
+    if text.isprintable():  # the common case: nothing to escape
+        return text
+    return "".join(_escape(ch) if _UNSAFE.match(ch) or unicodedata.category(ch) in ("Cf", "Cs", "Co", "Cn")
+                   else ch for ch in text)
+
+
+def quoted(name: object, limit: int = 60) -> str:
+    """A name as a message quotes it: in quotes, escaped by :func:`printable`, cut after ``limit`` characters."""
+    return "'" + printable(str(name), limit) + "'"
+
+
+def did_you_mean(name: str, allowed: Iterable[str], n: int = 3) -> list[str]:
+    """The allowed names a mistyped ``name`` most likely meant: those it begins (``Fe`` -> ``Fe(II)``, ``Fe(III)``),
+    or else the close matches by :mod:`difflib`; case ignored.
+
+    >>> did_you_mean("Fe", ["Fe(II)", "Fe(III)", "Ca"])
+    ['Fe(II)', 'Fe(III)']
+    >>> did_you_mean("EDTX", ["EDTA", "EGTA", "CDTA", "DTPA"])
+    ['EDTA']
+    """
+    key = str(name).strip().lower()
+    if not key or len(key) > 40:
+        return []
+    by_lower: dict[str, str] = {}
+    for a in allowed:
+        by_lower.setdefault(str(a).lower(), str(a))
+    hits = [a for low, a in by_lower.items() if low.startswith(key) and low != key]
+    if not hits:
+        hits = [by_lower[m] for m in difflib.get_close_matches(key, list(by_lower), n=n, cutoff=0.6)]
+    return list(dict.fromkeys(hits))[:n]
+
+
+def _or(names: list[str]) -> str:
+    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " or " + names[-1]
 
 
 class OptimiserError(Exception):
@@ -34,17 +93,23 @@ class UnknownNameError(InputError, KeyError):
         The name as given.
     allowed : list of str
         The names that are known, sorted.
+    spellings : dict or None
+        Other spellings of the known names (spelling -> name), for the "did you mean" hint.
     """
 
-    def __init__(self, kind: str, name: str, allowed: Iterable[str]):
+    def __init__(self, kind: str, name: str, allowed: Iterable[str], spellings: Mapping[str, str] | None = None):
         self.kind, self.name, self.allowed = kind, name, sorted(allowed)
-        super().__init__(f"unknown {kind} {name!r}; known {kind}s: {', '.join(self.allowed)}")
+        self.spellings = dict(spellings) if spellings else None
+        by_spelling = {**{a: a for a in self.allowed}, **(self.spellings or {})}
+        close = list(dict.fromkeys(by_spelling[s] for s in did_you_mean(name, by_spelling, n=6)))[:3]
+        hint = f"; did you mean {_or(close)}?" if close else ";"
+        super().__init__(f"unknown {kind} {quoted(name)}{hint} known {kind}s: {', '.join(self.allowed)}")
 
     def __str__(self) -> str:  # KeyError would otherwise quote the message
         return self.args[0]
 
     def __reduce__(self):
-        return (type(self), (self.kind, self.name, self.allowed), self.__dict__)
+        return (type(self), (self.kind, self.name, self.allowed, self.spellings), self.__dict__)
 
 
 class ScenarioError(InputError):
@@ -68,7 +133,7 @@ class ScenarioError(InputError):
             if line is not None:
                 where += f":{line}" + (f":{column}" if column is not None else "")
             where += ": "
-        super().__init__(where + message)
+        super().__init__(printable(where + message))
 
     def __reduce__(self):
         return (type(self), (self.message, self.path, self.line, self.column), self.__dict__)

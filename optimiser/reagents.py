@@ -62,6 +62,8 @@ class Titrant:
         with fewer published methods and less certain constants (common practice).
     search_default : bool
         Whether a scenario that lists no titrants searches it.
+    aliases : tuple of str
+        Other spellings a user may type (``reagents.yaml``), matched as :func:`spelling` reduces them.
     """
 
     id: str
@@ -72,6 +74,7 @@ class Titrant:
     cautions: tuple[str, ...]
     complexity: float = 0.0
     search_default: bool = True
+    aliases: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         _check_hazard(f"titrant {self.id}", self.hazard)
@@ -173,6 +176,8 @@ class Buffer:
         titrant before raising the pH.
     search_default : bool
         Whether a scenario that lists no buffers searches it.
+    aliases : tuple of str
+        Other spellings a user may type.
     """
 
     id: str
@@ -185,6 +190,7 @@ class Buffer:
     default_total_M: float = 0.0
     strong_alkali: bool = False
     search_default: bool = True
+    aliases: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         _check_hazard(f"buffer {self.id}", self.hazard)
@@ -224,6 +230,7 @@ class MaskingAgent:
     masks: dict = field(default_factory=dict, compare=False)
     density_g_mL: float | None = None
     search_default: bool = True
+    aliases: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         _check_hazard(f"masking agent {self.id}", self.hazard)
@@ -374,11 +381,25 @@ class Catalogue:
     def indicator(self, name: str) -> Indicator:
         if name in self.indicators:
             return self.indicators[name]
-        key = name.strip().lower().replace(" ", "_").replace("-", "_")
+        key = spelling(name)
         for ind in self.indicators.values():
-            if key in {ind.id.lower(), ind.name.lower().replace(" ", "_"), *(a.lower().replace(" ", "_") for a in ind.aliases)}:
+            if key in {spelling(ind.id), spelling(ind.name), *map(spelling, ind.aliases)}:
                 return ind
-        raise UnknownNameError("indicator", name, self.indicators)
+        raise UnknownNameError("indicator", name, self.indicators,
+                               {a: i.id for i in self.indicators.values() for a in (i.name, *i.aliases)})
+
+    def reagent_id(self, name: str) -> str:
+        """The id of a titrant, buffer, masking agent or indicator from any of its spellings ("thiosulphate").
+
+        >>> catalogue().reagent_id("thiosulphate"), catalogue().reagent_id("Eriochrome Black T")
+        ('thiosulfate', 'EBT')
+        """
+        for lookup in (self.titrant, self.buffer, self.masking_agent, self.indicator):
+            try:
+                return lookup(name).id
+            except UnknownNameError:
+                continue
+        raise UnknownNameError("reagent", name, self.all_ids())
 
     def default_ids(self, kind: str) -> tuple[str, ...]:
         """Ids a search uses when a scenario does not list this kind, in the data file's order.
@@ -412,13 +433,41 @@ class Catalogue:
         return [r for r in self.safety_rules if r.applies_to(ids)]
 
 
+def spelling(name: str) -> str:
+    """A name reduced for matching: case, surrounding space, and the difference between space, - and _ ignored.
+
+    >>> spelling(" Nitric-acid ")
+    'nitric_acid'
+    """
+    return "_".join(str(name).strip().lower().replace("-", " ").replace("_", " ").split())
+
+
 def _pick(table: dict, name: str, kind: str):
+    """The entry of ``table`` whose id or one of whose ``aliases`` is ``name`` (as :func:`spelling` reduces them)."""
     if name in table:
         return table[name]
-    lowered = {k.lower(): v for k, v in table.items()}
-    if name.strip().lower() in lowered:
-        return lowered[name.strip().lower()]
-    raise UnknownNameError(kind, name, table)
+    key = spelling(name)
+    for ident, entry in table.items():
+        if key == spelling(ident) or key in map(spelling, getattr(entry, "aliases", ())):
+            return entry
+    raise UnknownNameError(kind, name, table, {a: i for i, e in table.items() for a in getattr(e, "aliases", ())})
+
+
+def ligand_id(name: str) -> str:
+    """The id of a ligand (``reagents.yaml``, ``ligands:``) from its id or one of its aliases (``ammonia`` -> NH3).
+
+    >>> ligand_id("ammonia"), ligand_id("thiosulphate"), ligand_id("EDTA")
+    ('NH3', 'thiosulfate', 'EDTA')
+    """
+    entries = data.entries("reagents.yaml", "ligands")
+    for d in entries:
+        if name == d["id"]:
+            return d["id"]
+    key = spelling(name)
+    for d in entries:
+        if key == spelling(d["id"]) or key in map(spelling, d["aliases"]):
+            return d["id"]
+    raise UnknownNameError("ligand", name, [d["id"] for d in entries], {a: d["id"] for d in entries for a in d["aliases"]})
 
 
 def _solution(d: Mapping[str, Any] | None) -> Solution | None:
@@ -439,7 +488,7 @@ def _built(file: str, section: str | None, make) -> dict[str, Any]:
 
 def _titrant(d: Mapping[str, Any]) -> Titrant:
     return Titrant(d["id"], d["name"], d["formula"], d["salt"], d["hazard"], tuple(d["cautions"]), d["complexity"],
-                   d["search_default"])
+                   d["search_default"], tuple(d["aliases"]))
 
 
 def _buffer(d: Mapping[str, Any]) -> Buffer:
@@ -447,12 +496,13 @@ def _buffer(d: Mapping[str, Any]) -> Buffer:
     recipe = BufferRecipe(r["kind"], r["acid_formula"], r["base_formula"], _solution(r["acid_solution"]),
                           _solution(r["base_solution"]))
     return Buffer(d["id"], d["name"], d["ligand"], tuple(d["pH_range"]), d["hazard"], tuple(d["cautions"]), recipe,
-                  d["default_total_M"], d["strong_alkali"], d["search_default"])
+                  d["default_total_M"], d["strong_alkali"], d["search_default"], tuple(d["aliases"]))
 
 
 def _masking(d: Mapping[str, Any]) -> MaskingAgent:
     return MaskingAgent(d["id"], d["name"], d["ligand"], d["formula"], d["salt"], d["min_pH"], tuple(d["dose_range_M"]),
-                        d["hazard"], tuple(d["cautions"]), d["reduces"], d["masks"], d["density_g_mL"], d["search_default"])
+                        d["hazard"], tuple(d["cautions"]), d["reduces"], d["masks"], d["density_g_mL"], d["search_default"],
+                        tuple(d["aliases"]))
 
 
 def _indicator(d: Mapping[str, Any]) -> Indicator:
@@ -531,6 +581,21 @@ def _check_ligands(cat: Catalogue) -> None:
                             "reagents.yaml", f"titrants/{t['id']}", "charge")
 
 
+def _check_aliases(cat: Catalogue) -> None:
+    """Within each kind (and among the ligands), every id and alias names one entry only."""
+    ligands = {d["id"]: d["aliases"] for d in data.entries("reagents.yaml", "ligands")}
+    kinds = {kind: {i: getattr(e, "aliases", ()) for i, e in getattr(cat, kind).items()} for kind in KINDS}
+    kinds["ligands"] = ligands
+    for kind, table in kinds.items():
+        seen: dict[str, str] = {}
+        for ident, aliases in table.items():
+            for name in dict.fromkeys(map(spelling, (ident, *aliases))):
+                if name in seen:
+                    file = "indicators.yaml" if kind == "indicators" else "reagents.yaml"
+                    raise DataError(f"{name!r} names both {seen[name]!r} and {ident!r}", file, f"{kind}/{ident}", "aliases")
+                seen[name] = ident
+
+
 def _check_safety_rules(cat: Catalogue) -> None:
     known = set(cat.all_ids())
     for rule in cat.safety_rules:
@@ -560,5 +625,6 @@ def catalogue() -> Catalogue:
     for p in cat.primary_standards.values():
         _check_metal(p.id, "reagents.yaml", f"primary_standards/{p.id}", "id")
     _check_ligands(cat)
+    _check_aliases(cat)
     _check_safety_rules(cat)
     return cat

@@ -1,19 +1,24 @@
-"""The search result as JSON documents, and atomic file writing.
+"""The search result as JSON documents, and file writing: atomic, in pairs, and into folders checked beforehand.
 
 The bench procedure is :mod:`optimiser.procedure`; what a report shows is :mod:`optimiser.analysis`. Both read the
 same search result, so the numbers an analyst reads in the report are the numbers in the JSON file.
 """
 from __future__ import annotations
 
+import contextlib
 import json
 import math
 import os
+import signal
 import tempfile
+import threading
+from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from .errors import InputError, printable
 from .reagents import HAZARD_NAMES
 from .search import Evaluation, SearchResult, strategy_of
 from .strategies import strategy
@@ -106,24 +111,98 @@ def titration_json(t: Titration, every: int = 1) -> dict[str, Any]:
     }
 
 
+def writable_folder(folder: Path, option: str = "--out") -> Path:
+    """Make sure files can be written in ``folder`` before any work is done: create it if needed, then create and
+    remove a probe file in it.
+
+    Raises
+    ------
+    InputError
+        ``folder`` is a file, lies below a file, cannot be created, or is read-only; the message names the option.
+    """
+    folder = Path(folder)
+    shown = printable(str(folder))
+    allowed = "allowed: a folder, new or existing, where files can be written"
+    existing = folder
+    while not os.path.lexists(existing) and existing != existing.parent:
+        existing = existing.parent
+    if os.path.lexists(existing) and not existing.is_dir():
+        where = "is a file" if existing == folder else f"lies below the file {printable(str(existing))}"
+        raise InputError(f"{option} {shown} {where}, not a folder; {allowed}")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        fd, probe = tempfile.mkstemp(prefix=".optimiser-probe-", suffix=".tmp", dir=folder)
+        os.close(fd)
+        os.unlink(probe)
+    except OSError as exc:
+        raise InputError(f"{option} {shown}: cannot write in this folder (read-only, or no permission: "
+                         f"{exc.strerror or exc}); {allowed}") from None
+    return folder
+
+
+Content = str | Callable[[Path], None]
+
+
+@contextlib.contextmanager
+def _signals_held():
+    """SIGINT, SIGTERM and SIGHUP wait until the block is done (in the main thread; elsewhere nothing is held)."""
+    held = {signal.SIGINT, signal.SIGTERM, signal.SIGHUP}
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    old = signal.pthread_sigmask(signal.SIG_BLOCK, held)
+    try:
+        yield
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, old)
+
+
+def write_together(files: Sequence[tuple[Path, Content]]) -> None:
+    """Write files that belong together (a report and its JSON): all of them appear, or none changes.
+
+    Each file is written in full to a temporary file in its own folder (``.optimiser-*.tmp``; text, or a writer
+    called with the temporary path) and flushed to disk; only when every one is complete are they renamed onto their
+    names, in the order given, with SIGINT, SIGTERM and SIGHUP held until the last rename is done. An error while
+    writing removes the temporaries and changes nothing.
+
+    What remains: the renames are separate system calls, microseconds apart. A SIGKILL or a power cut between two
+    of them leaves the first files new and the last ones old. Callers therefore put the file that marks a complete
+    run last (the JSON result after its report, the batch index after its summary): a new last file always has its
+    new companions beside it.
+    """
+    umask = os.umask(0)
+    os.umask(umask)
+    temps: list[tuple[str, Path]] = []
+    try:
+        for path, content in files:
+            path = Path(path)
+            path.parent.mkdir(parents=True, exist_ok=True)
+            fd, tmp = tempfile.mkstemp(prefix=".optimiser-", suffix=".tmp", dir=path.parent)
+            temps.append((tmp, path))
+            with os.fdopen(fd, "w", encoding="utf-8") as f:
+                if isinstance(content, str):
+                    f.write(content)
+            if not isinstance(content, str):
+                content(Path(tmp))
+            with open(tmp, "rb+") as f:
+                os.fsync(f.fileno())
+            os.chmod(tmp, 0o666 & ~umask)
+        with _signals_held():
+            while temps:
+                tmp, path = temps[0]
+                os.replace(tmp, path)
+                temps.pop(0)
+    finally:
+        for tmp, _ in temps:
+            try:
+                os.unlink(tmp)
+            except OSError:
+                pass
+
+
 def write_atomic(path: Path, text: str) -> None:
     """Write a file through a temporary file and a rename: never a half-written or broken file in place."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as f:
-            f.write(text)
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
+    write_together([(Path(path), text)])
 
 
 def dumps(obj: Any) -> str:

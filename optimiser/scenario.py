@@ -1,26 +1,37 @@
 """Scenario files (YAML) -> validated, frozen objects.
 
-The schema is the project's own (documented in the README). YAML is read with safe loading only;
-unknown keys and duplicate keys are rejected; every error names the file, line and column and says what
-is allowed.
+The schema is the project's own (documented in the README). The text is read by :mod:`optimiser.yaml_reader`
+(bounded in size and nesting, no aliases, no tags beyond plain values, no control characters); unknown and duplicate
+keys are rejected; every value is checked for its type, its range and finiteness before anything is computed; every
+error names the file, line and column and says what is allowed.
 """
 from __future__ import annotations
 
+import unicodedata
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
 from typing import Any
 
-import yaml
-
+from . import yaml_reader
 from .constants import IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C, database
-from .errors import InputError, OptimiserError, ScenarioError
+from .errors import InputError, OptimiserError, ScenarioError, printable, quoted
 from .method import Sample
 from .objectives import OBJECTIVES as _OBJECTIVE_REGISTRY
 from .reagents import HAZARD_NAMES, catalogue
 from .strategies import strategy_ids
-from .units import concentration_M, molarity, temperature_C, volume_mL
+from .units import (
+    CONCENTRATION_RANGE_M,
+    BURETTE_RANGE_mL,
+    SAMPLE_VOLUME_RANGE_mL,
+    concentration_M,
+    formula_mass,
+    molarity,
+    real,
+    temperature_C,
+    volume_mL,
+)
 
 OBJECTIVES = tuple(_OBJECTIVE_REGISTRY)  # the objectives the weights may name (optimiser.objectives)
 MODES = strategy_ids()  # the strategies a search may use (optimiser.strategies)
@@ -106,64 +117,57 @@ class Scenario:
 
 
 class _Marks:
-    """Line and column of each key path in a YAML document (1-based), from the composed node tree."""
+    """Line and column of each key path in a YAML document (1-based), as :func:`yaml_reader.read` found them."""
 
-    def __init__(self, text: str, path: str):
+    def __init__(self, marks: Mapping[tuple, tuple[int, int]], path: str):
         self.path = path
-        self.marks: dict[tuple, tuple[int, int]] = {}
-        try:
-            node = yaml.compose(text, Loader=yaml.SafeLoader)
-        except yaml.YAMLError as exc:
-            mark = getattr(exc, "problem_mark", None)
-            problem = getattr(exc, "problem", None) or str(exc)
-            raise ScenarioError(f"malformed YAML: {problem}", path, mark.line + 1 if mark else None,
-                                mark.column + 1 if mark else None) from None
-        if node is not None:
-            self._walk(node, ())
-
-    def _walk(self, node, key):
-        self.marks[key] = (node.start_mark.line + 1, node.start_mark.column + 1)
-        if isinstance(node, yaml.MappingNode):
-            seen = set()
-            for k, v in node.value:
-                name = k.value
-                if name in seen:
-                    raise ScenarioError(f"duplicate key {name!r}", self.path, k.start_mark.line + 1, k.start_mark.column + 1)
-                seen.add(name)
-                self.marks[key + (name, "<key>")] = (k.start_mark.line + 1, k.start_mark.column + 1)
-                self._walk(v, key + (name,))
-        elif isinstance(node, yaml.SequenceNode):
-            for i, v in enumerate(node.value):
-                self._walk(v, key + (i,))
+        self.marks = marks
 
     def error(self, message: str, key: tuple) -> ScenarioError:
         k = key
         while k and k not in self.marks:
             k = k[:-1]
-        line, col = self.marks.get(k, (None, None))
+        line, col = self.marks.get(k, (1, 1))
         return ScenarioError(message, self.path, line, col)
+
+
+def _dotted(key: tuple) -> str:
+    return ".".join(str(k) for k in key if k != "<key>")
+
+
+_KINDS = {list: "a list", dict: "a mapping", str: "text", int: "a whole number"}
 
 
 def _check_keys(doc: Mapping, schema: Mapping, marks: _Marks, key: tuple) -> None:
     for k in doc:
         if k not in schema:
-            where = "top level" if not key else ".".join(map(str, key))
-            raise marks.error(f"unknown key {k!r} in {where}; allowed: {', '.join(schema)}", key + (k, "<key>"))
-        sub = schema[k]
+            where = "the top level" if not key else _dotted(key)
+            raise marks.error(f"unknown key {quoted(k)} in {where}; allowed: {', '.join(schema)}", key + (k, "<key>"))
+        sub, v = schema[k], doc[k]
         if isinstance(sub, dict):
-            if not isinstance(doc[k], Mapping):
-                raise marks.error(f"{'.'.join(map(str, key + (k,)))} must be a mapping with keys {', '.join(sub)}", key + (k,))
-            _check_keys(doc[k], sub, marks, key + (k,))
-        elif sub in (list, dict, str, int) and doc[k] is not None and not isinstance(doc[k], sub):
-            kind = {list: "a list", dict: "a mapping", str: "text", int: "a whole number"}[sub]
-            raise marks.error(f"{'.'.join(map(str, key + (k,)))} must be {kind}", key + (k,))
+            if not isinstance(v, Mapping):
+                raise marks.error(f"{_dotted(key + (k,))} must be a mapping with keys {', '.join(sub)}", key + (k,))
+            _check_keys(v, sub, marks, key + (k,))
+        elif sub in _KINDS and v is not None and (not isinstance(v, sub) or isinstance(v, bool)):
+            raise marks.error(f"{_dotted(key + (k,))} must be {_KINDS[sub]}; got {_shown(v)}", key + (k,))
+
+
+def _shown(value: Any) -> str:
+    """A value as a message shows it: text quoted and escaped, a list or mapping by its kind, a number as written."""
+    if isinstance(value, str):
+        return quoted(value)
+    if isinstance(value, (list, dict)):
+        return "a list" if isinstance(value, list) else "a mapping"
+    if value is None:
+        return "nothing (null)"
+    return printable(repr(value), 40)
 
 
 def _names(values, resolve, marks, key) -> tuple[str, ...]:
     out = []
     for i, v in enumerate(values):
         if not isinstance(v, str):
-            raise marks.error(f"{'.'.join(map(str, key))} entries must be names", key + (i,))
+            raise marks.error(f"{_dotted(key)} entries must be names; got {_shown(v)}", key + (i,))
         try:
             out.append(resolve(v))
         except InputError as exc:
@@ -172,13 +176,12 @@ def _names(values, resolve, marks, key) -> tuple[str, ...]:
 
 
 def _hazard(value, marks, key) -> int:
-    if isinstance(value, bool):
-        raise marks.error(f"max_hazard must be one of {', '.join(HAZARD_NAMES)} (or 0-4)", key)
-    if isinstance(value, int) and 0 <= value <= 4:
+    allowed = f"allowed: {', '.join(HAZARD_NAMES)} (or 0-4)"
+    if isinstance(value, int) and not isinstance(value, bool) and 0 <= value <= 4:
         return value
-    if isinstance(value, str) and value.lower() in HAZARD_NAMES:
-        return HAZARD_NAMES.index(value.lower())
-    raise marks.error(f"max_hazard must be one of {', '.join(HAZARD_NAMES)} (or 0-4); got {value!r}", key)
+    if isinstance(value, str) and value.strip().lower() in HAZARD_NAMES:
+        return HAZARD_NAMES.index(value.strip().lower())
+    raise marks.error(f"max_hazard is {_shown(value)}; {allowed}", key)
 
 
 class _Reader:
@@ -200,27 +203,55 @@ class _Reader:
         except ScenarioError:
             raise
         except OptimiserError as exc:
-            raise self.error(f"{'.'.join(key)}: {exc}", key) from None
+            raise self.error(f"{_dotted(key)}: {exc}", key) from None
 
-    def list_(self, section: Mapping, key: tuple) -> list:
-        """A list-valued key that is present (null is not a list: it is refused, not taken as empty)."""
+    def ranged(self, key: tuple, fn, lo: float, hi: float, unit: str, at_most: bool = False) -> float:
+        """``fn(value at key)`` (located as :meth:`value`), which must lie from ``lo`` to ``hi`` [``unit``]; the
+        message says "at most ``hi``" where ``at_most`` (a value that cannot be below ``lo``)."""
+        v = self.value(key, fn)
+        if not lo <= v <= hi:
+            u = f" {unit}" if unit else ""
+            allowed = f"at most {hi:g}{u}" if at_most else f"between {lo:g} and {hi:g}{u}"
+            raise self.error(f"{_dotted(key)} must be {allowed}; got {v:.4g}{u}", key)
+        return v
+
+    def list_(self, section: Mapping, key: tuple, non_empty: str | None = None) -> list:
+        """A list-valued key that is present (null is not a list: it is refused, not taken as empty); ``non_empty``
+        says what an empty list lacks."""
         v = section[key[-1]]
         if not isinstance(v, list):
-            raise self.error(f"{'.'.join(map(str, key))} must be a list", key)
+            raise self.error(f"{_dotted(key)} must be a list; got {_shown(v)}", key)
+        if non_empty and not v:
+            raise self.error(f"{_dotted(key)} is empty; allowed: a list of at least one {non_empty}", key)
+        return v
+
+    def text(self, key: tuple, limit: int, one_line: bool = True, required: bool = False) -> str:
+        """Text at ``key`` (stripped; "" when absent or null unless ``required``): at most ``limit`` characters, with
+        no control or invisible character (a line break and a tab allowed where ``one_line`` is false)."""
+        d: Any = self.doc
+        for k in key[:-1]:
+            d = d.get(k) or {}
+        v = d.get(key[-1])
+        if v is None and not required:
+            return ""
+        if not isinstance(v, str) or (required and not v.strip()):
+            raise self.error(f"{_dotted(key)} must be {'non-empty ' if required else ''}text; got {_shown(v)}", key)
+        v = v.strip()
+        if len(v) > limit:
+            raise self.error(f"{_dotted(key)} is {len(v):,} characters long; allowed: at most {limit:,}", key)
+        for ch in v:
+            if not (ch.isprintable() or unicodedata.category(ch) == "Zs" or (not one_line and ch in "\n\t")):
+                raise self.error(f"{_dotted(key)} holds U+{ord(ch):04X}, a control or invisible character; allowed: "
+                                 f"printable text{'' if one_line else ', tabs and line breaks'}", key)
         return v
 
 
 def _document(text: str, path: str) -> tuple[Mapping[str, Any], _Marks]:
     """The YAML document (a mapping whose keys are all known) and the marks that locate its keys."""
-    marks = _Marks(text, path)
-    try:
-        doc = yaml.safe_load(text)
-    except yaml.YAMLError as exc:  # compose succeeded, so this is a constructor problem (bad tag, ...)
-        mark = getattr(exc, "problem_mark", None)
-        raise ScenarioError(f"cannot read the YAML: {getattr(exc, 'problem', exc)}", path,
-                            mark.line + 1 if mark else None, mark.column + 1 if mark else None) from None
+    doc, found = yaml_reader.read(text, path)
+    marks = _Marks(found, path)
     if not isinstance(doc, Mapping):
-        raise ScenarioError("a scenario must be a YAML mapping with keys " + ", ".join(_SCHEMA), path, 1, 1)
+        raise marks.error("a scenario must be a YAML mapping with keys " + ", ".join(_SCHEMA), ())
     _check_keys(doc, _SCHEMA, marks, ())
     for required in ("name", "sample", "analyte", "titrant"):
         if required not in doc:
@@ -228,11 +259,12 @@ def _document(text: str, path: str) -> tuple[Mapping[str, Any], _Marks]:
     return doc, marks
 
 
+# The longest text each field may hold (characters).
+TEXT_LIMITS = {"name": 200, "description": 10_000, "matrix": 500, "analyte_name": 200}
+
+
 def _name(r: _Reader) -> str:
-    name = r.doc["name"]
-    if not isinstance(name, str) or not name.strip():
-        raise r.error("name must be non-empty text", ("name",))
-    return name.strip()
+    return r.text(("name",), TEXT_LIMITS["name"], required=True)
 
 
 def _conditions(r: _Reader) -> tuple[float, float, float]:
@@ -240,21 +272,19 @@ def _conditions(r: _Reader) -> tuple[float, float, float]:
     s = r.doc["sample"]
     if "volume" not in s:
         raise r.error("sample.volume is required (for example 50 mL)", ("sample",))
-    V0 = r.value(("sample", "volume"), volume_mL)
-    I = r.value(("sample", "ionic_strength"), molarity, "ionic strength") if "ionic_strength" in s else 0.1
-    if I > IONIC_STRENGTH_MAX_M:
-        raise r.error(f"sample.ionic_strength must be at most {IONIC_STRENGTH_MAX_M:g} M (Davies holds to about 0.5 M)",
-                      ("sample", "ionic_strength"))
-    T = r.value(("sample", "temperature"), temperature_C) if "temperature" in s else 25.0
-    lo, hi = TEMPERATURE_RANGE_C
-    if not lo <= T <= hi:
-        raise r.error(f"sample.temperature must be between {lo:g} and {hi:g} degC", ("sample", "temperature"))
+    V0 = r.ranged(("sample", "volume"), volume_mL, *SAMPLE_VOLUME_RANGE_mL, "mL")
+    I = 0.1
+    if "ionic_strength" in s:
+        I = r.ranged(("sample", "ionic_strength"), lambda v: molarity(v, "ionic strength"), 0.0, IONIC_STRENGTH_MAX_M,
+                     "M", at_most=True)
+    T = r.ranged(("sample", "temperature"), temperature_C, *TEMPERATURE_RANGE_C, "degC") if "temperature" in s else 25.0
     return V0, I, T
 
 
 def _add_metals(r: _Reader, block: Mapping, key: tuple, metals: dict[str, float]) -> list[str]:
     """Read ``block`` (metal: concentration) into ``metals``; the ids added, in order."""
     db = database()
+    lo, hi = CONCENTRATION_RANGE_M
     added = []
     for m, v in block.items():
         try:
@@ -266,27 +296,31 @@ def _add_metals(r: _Reader, block: Mapping, key: tuple, metals: dict[str, float]
         if mid in metals:
             raise r.error(f"{mid} is given twice (as analyte and interferent, or twice)", key + (m, "<key>"))
         try:
-            metals[mid] = concentration_M(v, mid)
+            c = concentration_M(v, mid)
         except InputError as exc:
-            raise r.error(f"{'.'.join(map(str, key + (m,)))}: {exc}", key + (m,)) from None
+            raise r.error(f"{_dotted(key + (m,))}: {exc}", key + (m,)) from None
+        if not lo <= c <= hi:
+            raise r.error(f"{_dotted(key + (m,))} must be between {lo:g} and {hi:g} mol/L (leave out a metal that is "
+                          f"absent); got {c:.4g} mol/L", key + (m,))
+        metals[mid] = c
         added.append(mid)
     return added
 
 
-def _metals(r: _Reader) -> tuple[dict[str, float], list[str], str, Any]:
+def _metals(r: _Reader) -> tuple[dict[str, float], list[str], str, str | None]:
     """Every metal's concentration [M], the analyte metals, the analyte's label and ``report_as``."""
     a = r.doc["analyte"]
     if "metals" not in a or not a["metals"]:
         raise r.error("analyte.metals is required: the metal or metals determined, with concentrations", ("analyte",))
     metals: dict[str, float] = {}
     analyte = _add_metals(r, a["metals"], ("analyte", "metals"), metals)
-    if any(metals[m] <= 0 for m in analyte):
-        raise r.error("every analyte metal needs a positive concentration", ("analyte", "metals"))
     _add_metals(r, r.doc.get("interferents") or {}, ("interferents",), metals)
-    label = a.get("name")
-    if label is not None and not isinstance(label, str):
-        raise r.error("analyte.name must be text", ("analyte", "name"))
-    return metals, analyte, label or " + ".join(analyte), a.get("report_as")
+    label = r.text(("analyte", "name"), TEXT_LIMITS["analyte_name"])
+    report_as = None
+    if a.get("report_as") is not None:
+        report_as = r.text(("analyte", "report_as"), 50)
+        r.value(("analyte", "report_as"), formula_mass)
+    return metals, analyte, label or " + ".join(analyte), report_as
 
 
 def _titrant(r: _Reader) -> tuple[float, float]:
@@ -294,37 +328,28 @@ def _titrant(r: _Reader) -> tuple[float, float]:
     t = r.doc["titrant"]
     if "concentration" not in t:
         raise r.error("titrant.concentration is required (for example 0.01 M)", ("titrant",))
-    cT = r.value(("titrant", "concentration"), molarity, "titrant concentration")
-    if not 1e-4 <= cT <= 1.0:
-        raise r.error("titrant.concentration must be between 0.0001 and 1 M", ("titrant", "concentration"))
-    burette = r.value(("titrant", "burette"), volume_mL) if "burette" in t else 25.0
+    cT = r.ranged(("titrant", "concentration"), lambda v: molarity(v, "titrant concentration"), 1e-4, 1.0, "mol/L")
+    burette = r.ranged(("titrant", "burette"), volume_mL, *BURETTE_RANGE_mL, "mL") if "burette" in t else 25.0
     return cT, burette
 
 
 def _forbid(r: _Reader, sp: Mapping) -> set[str]:
-    """The lower-cased names in ``search.forbid``, each checked to be a reagent."""
-    forbid = set()
-    for i, f in enumerate(sp.get("forbid") or []):
-        if not isinstance(f, str):
-            raise r.error("search.forbid entries must be reagent names", ("search", "forbid", i))
-        forbid.add(f.strip().lower())
-    return forbid
-
-
-def _check_forbid(r: _Reader, forbid: set[str]) -> None:
-    known = {x.lower() for x in catalogue().all_ids()}
-    for f in forbid:
-        if f not in known:
-            raise r.error(f"search.forbid: unknown reagent {f!r}; known: {', '.join(sorted(known))}", ("search", "forbid"))
+    """The ids of the reagents in ``search.forbid`` (any of their spellings), each checked to be a reagent."""
+    if "forbid" not in sp:
+        return set()
+    cat = catalogue()
+    return set(_names(r.list_(sp, ("search", "forbid")), cat.reagent_id, r.marks, ("search", "forbid")))
 
 
 def _pH_range(r: _Reader, sp: Mapping) -> tuple[float, float]:
     rng = sp["pH"]
-    if not isinstance(rng, list) or len(rng) != 2 or not all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in rng):
+    if not isinstance(rng, list) or len(rng) != 2 or \
+            not all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in rng):
         raise r.error("search.pH must be [low, high], two numbers", ("search", "pH"))
-    if not (0 <= rng[0] < rng[1] <= 14):
-        raise r.error(f"search.pH must satisfy 0 <= low < high <= 14; got {rng}", ("search", "pH"))
-    return float(rng[0]), float(rng[1])
+    lo, hi = (r.value(("search", "pH", i), real, "the value") for i in (0, 1))
+    if not (0 <= lo < hi <= 14):
+        raise r.error(f"search.pH must satisfy 0 <= low < high <= 14; got [{lo:g}, {hi:g}]", ("search", "pH"))
+    return lo, hi
 
 
 def _reagents(r: _Reader, sp: Mapping, forbid: set[str]) -> dict[str, tuple[str, ...]]:
@@ -339,26 +364,33 @@ def _reagents(r: _Reader, sp: Mapping, forbid: set[str]) -> dict[str, tuple[str,
             chosen = _names(r.list_(sp, ("search", key)), resolver, r.marks, ("search", key))
         else:
             chosen = cat.default_ids(key)
-        out[key] = tuple(c for c in chosen if c.lower() not in forbid)
+        out[key] = tuple(c for c in chosen if c not in forbid)
     return out
 
 
 def _modes(r: _Reader, sp: Mapping) -> tuple[str, ...]:
-    modes = r.list_(sp, ("search", "modes"))
+    modes = r.list_(sp, ("search", "modes"), non_empty=f"mode ({', '.join(MODES)})")
     for i, m in enumerate(modes):
-        if m not in MODES:
-            raise r.error(f"search.modes: {m!r} is not a mode; allowed: {', '.join(MODES)}", ("search", "modes", i))
-    return tuple(modes)
+        if not isinstance(m, str) or m not in MODES:
+            raise r.error(f"search.modes: {_shown(m)} is not a mode; allowed: {', '.join(MODES)}", ("search", "modes", i))
+    return tuple(dict.fromkeys(modes))
 
 
 def _back_metals(r: _Reader, sp: Mapping) -> tuple[str, ...]:
     standards = list(catalogue().standards)
-    metals = r.list_(sp, ("search", "back_metals"))
+    allowed = " or ".join([", ".join(standards[:-1]), standards[-1]] if len(standards) > 1 else standards)
+    metals = r.list_(sp, ("search", "back_metals"), non_empty=f"standard ({allowed})")
+    out = []
     for i, m in enumerate(metals):
-        if m not in standards:
-            allowed = " or ".join([", ".join(standards[:-1]), standards[-1]] if len(standards) > 1 else standards)
-            raise r.error(f"search.back_metals: the back-titration standard must be {allowed}", ("search", "back_metals", i))
-    return tuple(metals)
+        try:
+            mid = database().metal(m) if isinstance(m, str) else None
+        except InputError:
+            mid = None
+        if mid not in standards:
+            raise r.error(f"search.back_metals: the back-titration standard must be {allowed}; got {_shown(m)}",
+                          ("search", "back_metals", i))
+        out.append(mid)
+    return tuple(dict.fromkeys(out))
 
 
 def _search(r: _Reader) -> SearchSpace:
@@ -368,11 +400,12 @@ def _search(r: _Reader) -> SearchSpace:
     if "pH" in sp:
         kwargs["pH_range"] = _pH_range(r, sp)
     kwargs.update(_reagents(r, sp, forbid))
-    _check_forbid(r, forbid)
     if "max_masking_agents" in sp:
-        if not isinstance(sp["max_masking_agents"], int):
-            raise r.error("search.max_masking_agents must be a whole number", ("search", "max_masking_agents"))
-        kwargs["max_masking_agents"] = sp["max_masking_agents"]
+        v = sp["max_masking_agents"]
+        if isinstance(v, bool) or not isinstance(v, int) or not 0 <= v <= 2:
+            raise r.error(f"search.max_masking_agents must be a whole number: 0, 1 or 2; got {_shown(v)}",
+                          ("search", "max_masking_agents"))
+        kwargs["max_masking_agents"] = v
     if "max_hazard" in sp:
         kwargs["max_hazard"] = _hazard(sp["max_hazard"], r.marks, ("search", "max_hazard"))
     if "modes" in sp:
@@ -385,17 +418,21 @@ def _search(r: _Reader) -> SearchSpace:
         raise r.error(f"search: {exc}", ("search",)) from None
 
 
+WEIGHT_RANGE = (0.0, 100.0)
+MAX_ERROR_PERCENT_RANGE = (0.001, 100.0)
+
+
 def _weights(r: _Reader, tg: Mapping) -> dict[str, float]:
     weights = tg["weights"]
     if not isinstance(weights, Mapping):
-        raise r.error("targets.weights must be a mapping", ("targets", "weights"))
+        raise r.error(f"targets.weights must be a mapping of objective: weight; got {_shown(weights)}",
+                      ("targets", "weights"))
     w = {}
-    for k, v in weights.items():
+    for k in weights:
         if k not in OBJECTIVES:
-            raise r.error(f"unknown objective {k!r}; allowed: {', '.join(OBJECTIVES)}", ("targets", "weights", k, "<key>"))
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or v < 0:
-            raise r.error(f"weight of {k} must be a number of 0 or more (0 drops the objective)", ("targets", "weights", k))
-        w[k] = float(v)
+            raise r.error(f"unknown objective {quoted(k)}; allowed: {', '.join(OBJECTIVES)}",
+                          ("targets", "weights", k, "<key>"))
+        w[k] = r.ranged(("targets", "weights", k), lambda v: real(v, "the weight"), *WEIGHT_RANGE, "")
     return {k: w.get(k, 1.0) for k in OBJECTIVES}
 
 
@@ -403,10 +440,8 @@ def _targets(r: _Reader) -> Targets:
     tg = r.doc.get("targets") or {}
     kwargs: dict[str, Any] = {}
     if "max_error_percent" in tg:
-        v = tg["max_error_percent"]
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not v > 0:
-            raise r.error("targets.max_error_percent must be a positive number", ("targets", "max_error_percent"))
-        kwargs["max_error_percent"] = float(v)
+        kwargs["max_error_percent"] = r.ranged(("targets", "max_error_percent"), lambda v: real(v, "the error"),
+                                               *MAX_ERROR_PERCENT_RANGE, "%")
     if "weights" in tg:
         kwargs["weights"] = _weights(r, tg)
     try:
@@ -429,7 +464,9 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
     doc, marks = _document(text, path)
     r = _Reader(doc, marks)
     name = _name(r)
+    description = r.text(("description",), TEXT_LIMITS["description"], one_line=False)
     V0, I, T = _conditions(r)
+    matrix = r.text(("sample", "matrix"), TEXT_LIMITS["matrix"])
     metals, analyte, label, report_as = _metals(r)
     cT, burette = _titrant(r)
     search = _search(r)
@@ -438,23 +475,26 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
         sample = Sample(volume_mL=V0, metals=metals, analyte=tuple(analyte), ionic_strength_M=I, temperature_C=T)
     except InputError as exc:
         raise r.error(str(exc), ("analyte",)) from None
-    return Scenario(name=name, description=str(doc.get("description") or ""), sample=sample, analyte_label=str(label),
-                    report_as=report_as, titrant_conc_M=cT, burette_mL=burette, matrix=str(doc["sample"].get("matrix") or ""),
-                    search=search, targets=targets, source=path, as_read=doc)
+    return Scenario(name=name, description=description, sample=sample, analyte_label=label, report_as=report_as,
+                    titrant_conc_M=cT, burette_mL=burette, matrix=matrix, search=search, targets=targets, source=path,
+                    as_read=doc)
 
 
 def load(path: str | Path) -> Scenario:
-    """Read and validate one scenario file."""
+    """Read and validate one scenario file (UTF-8, at most :data:`yaml_reader.MAX_BYTES`)."""
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8")
+        if p.is_dir():
+            raise ScenarioError("is a folder, not a scenario file", str(p))
+        with p.open("rb") as f:
+            if not p.is_file():
+                raise ScenarioError("is not a regular file; allowed: a scenario file", str(p))
+            data = f.read(yaml_reader.MAX_BYTES + 1)
     except FileNotFoundError:
         raise ScenarioError("no such file", str(p)) from None
-    except IsADirectoryError:
-        raise ScenarioError("is a folder, not a scenario file", str(p)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ScenarioError(f"cannot read the file: {exc}", str(p)) from None
-    return parse(text, str(p))
+    except OSError as exc:
+        raise ScenarioError(f"cannot read the file: {exc.strerror or exc}", str(p)) from None
+    return parse(yaml_reader.decode(data, str(p)), str(p))
 
 
 DEMO = "demo_hardness.yaml"

@@ -517,7 +517,7 @@ WRONG_FOR_TEXT = [("5", "invalid"), ("[a]", "invalid"), ("{a: 1}", "invalid"), (
                   ("2024-01-01", "invalid"), ("1.5", "invalid")]
 NUMBER_OK = {("sample", "volume"), ("sample", "ionic_strength"), ("sample", "temperature"), ("titrant", "burette"),
              ("titrant", "concentration"), ("targets", "max_error_percent"), ("search", "max_masking_agents"),
-             ("search", "max_hazard")}
+             ("search", "max_hazard"), ("targets", "weights", "error")}  # a weight is a bare number (README)
 
 
 def k_wrong_type(rng):

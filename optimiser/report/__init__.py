@@ -8,7 +8,8 @@ the format's name as its extension.
 """
 from __future__ import annotations
 
-from collections.abc import Callable
+import unicodedata
+from collections.abc import Callable, Collection
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -24,17 +25,52 @@ FORMATS: dict[str, Callable[[Analysis, Path], None]] = {
 DEFAULT_FORMAT = "html"
 
 
-def safe_name(name: str) -> str:
-    """A file name from a scenario name (letters, digits, - and _ only)."""
-    out = "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in name).strip("_")
-    return out[:80] or "scenario"
+MAX_NAME_BYTES = 100  # of a report's base name, UTF-8; with ".html" and a "-12" suffix it stays far below 255
+_RESERVED = {"con", "prn", "aux", "nul", *(f"com{i}" for i in range(1, 10)), *(f"lpt{i}" for i in range(1, 10))}
+
+
+def safe_name(name: str, max_bytes: int = MAX_NAME_BYTES) -> str:
+    """A file name from a scenario name: letters (any script), digits, - and _ only, at most ``max_bytes`` bytes of
+    UTF-8 (cut at a character), never empty, never a name Windows reserves.
+
+    >>> safe_name("well water: hardness (2024)")
+    'well_water__hardness__2024'
+    >>> len(safe_name("漢" * 80).encode())
+    99
+    """
+    text = unicodedata.normalize("NFC", str(name))
+    out = "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in text).strip("_").lstrip("-")
+    out = out.encode("utf-8")[:max_bytes].decode("utf-8", "ignore").rstrip("_")
+    if out.lower() in _RESERVED:
+        out += "_"
+    return out or "scenario"
+
+
+def report_base(name: str, taken: Collection[str] = ()) -> str:
+    """The base name of a run's files (``<base>.html``, ``<base>.json``): :func:`safe_name`, then ``-2``, ``-3``, ...
+    while it is among ``taken`` (compared without case, as some file systems do). The one naming rule of ``run`` and
+    ``batch``.
+
+    >>> report_base("water", ["water", "Water-2"])
+    'water-3'
+    """
+    lowered = {t.lower() for t in taken}
+    base = safe_name(name)
+    k = 2
+    while base.lower() in lowered:
+        suffix = f"-{k}"
+        base = safe_name(name, MAX_NAME_BYTES - len(suffix)) + suffix
+        k += 1
+    return base
 
 
 def write(result: Any, out_dir: Path, json_text: str, base: str | None = None, report_format: str = DEFAULT_FORMAT,
           analysis: Analysis | None = None) -> tuple[Path, Path]:
-    """Write DIR/<name>.<report_format> and DIR/<name>.json atomically (name from the scenario unless given); returns both.
+    """Write DIR/<name>.<report_format> and DIR/<name>.json together (name from the scenario unless given); returns both.
 
-    ``analysis`` is the result's analysis when the caller has it; otherwise it is computed here.
+    Both files are written in full to temporaries first and then renamed, the JSON last
+    (:func:`optimiser.results.write_together`): a run's files all appear, or none changes. ``analysis`` is the
+    result's analysis when the caller has it; otherwise it is computed here.
     """
     from ..errors import UnknownNameError
     if report_format not in FORMATS:
@@ -43,11 +79,10 @@ def write(result: Any, out_dir: Path, json_text: str, base: str | None = None, r
         from ..analysis import analyse  # for callers that hold only the search result
         analysis = analyse(result)
     out_dir = Path(out_dir)
-    base = safe_name(base or result.scenario.name)
+    base = report_base(base or result.scenario.name)
     report_path, json_path = out_dir / f"{base}.{report_format}", out_dir / f"{base}.json"
-    from ..results import write_atomic
-    write_atomic(json_path, json_text)
-    FORMATS[report_format](analysis, report_path)
+    from ..results import write_together
+    write_together([(report_path, lambda tmp: FORMATS[report_format](analysis, tmp)), (json_path, json_text)])
     return report_path, json_path
 
 
@@ -59,6 +94,7 @@ __all__ = [
     "fmt",
     "range_text",
     "render",
+    "report_base",
     "safe_name",
     "signed",
     "write",
