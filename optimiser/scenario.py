@@ -38,7 +38,7 @@ MODES = strategy_ids()  # the strategies a search may use (optimiser.strategies)
 
 _SCHEMA: dict[str, Any] = {
     "name": str, "description": str,
-    "sample": {"volume": None, "ionic_strength": None, "temperature": None, "matrix": str},
+    "sample": {"volume": None, "ionic_strength": None, "temperature": None, "matrix": str, "acid": None, "pH": None},
     "analyte": {"name": None, "metals": dict, "report_as": str},
     "interferents": dict,
     "titrant": {"concentration": None, "burette": None},
@@ -281,6 +281,25 @@ def _conditions(r: _Reader) -> tuple[float, float, float]:
     return V0, I, T
 
 
+def _acid(r: _Reader) -> float:
+    """Strong acid the sample holds as H+ [mol/L], from ``sample.acid`` (a concentration of H+) or ``sample.pH`` (an
+    acid-preserved sample's pH, 0-7: 10^-pH mol/L); 0 when neither is given."""
+    s = r.doc["sample"]
+    if "acid" in s and "pH" in s:
+        raise r.error("give the sample's acid either as sample.acid (mol/L of H+) or as sample.pH, not both",
+                      ("sample", "pH"))
+    if "acid" in s:
+        return r.ranged(("sample", "acid"), lambda v: molarity(v, "sample acid"), 0.0, 2.0, "M", at_most=True)
+    if "pH" in s:
+        def number(v):
+            if isinstance(v, bool) or not isinstance(v, (int, float)):
+                raise InputError(f"must be a number from 0 to 7; got {v!r}")
+            return float(v)
+        pH = r.ranged(("sample", "pH"), number, 0.0, 7.0, "")
+        return 10.0 ** -pH if pH < 7.0 else 0.0
+    return 0.0
+
+
 def _add_metals(r: _Reader, block: Mapping, key: tuple, metals: dict[str, float]) -> list[str]:
     """Read ``block`` (metal: concentration) into ``metals``; the ids added, in order."""
     db = database()
@@ -472,7 +491,8 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
     search = _search(r)
     targets = _targets(r)
     try:
-        sample = Sample(volume_mL=V0, metals=metals, analyte=tuple(analyte), ionic_strength_M=I, temperature_C=T)
+        sample = Sample(volume_mL=V0, metals=metals, analyte=tuple(analyte), ionic_strength_M=I, temperature_C=T,
+                        acid_M=_acid(r))
     except InputError as exc:
         raise r.error(str(exc), ("analyte",)) from None
     return Scenario(name=name, description=description, sample=sample, analyte_label=label, report_as=report_as,

@@ -163,3 +163,18 @@ def test_demo_search_space_is_the_catalogue_defaults():
     assert sp.masking == ("cyanide", "fluoride", "TEA", "thiosulfate", "thiourea", "iodide", "phen", "citrate", "tartrate")
     assert sp.indicators == ("EBT", "calmagite", "murexide", "calcon_carboxylic", "xylenol_orange", "PAN", "methylthymol_blue")
     assert sp.back_metals == ("Zn", "Mg") and sp.max_masking_agents == 1 and sp.pH_range == (7.0, 13.0)
+
+
+@pytest.mark.parametrize("line,acid", [("pH: 2", 0.01), ("acid: 20 mmol/L", 0.02), ("pH: 7", 0.0)])
+def test_an_acid_preserved_sample_states_its_acid(line, acid):
+    """The sample's own acid (a preserved water: pH 2, common practice) is read from sample.pH or sample.acid."""
+    text = ("name: acid\nsample: {volume: 50 mL, " + line.replace(": ", ": ", 1) + "}\n"
+            "analyte: {metals: {Ca: 1 mmol/L}}\ntitrant: {concentration: 0.01 M}\n")
+    assert parse(text, "acid.yaml").sample.acid_M == pytest.approx(acid)
+
+
+def test_acid_and_pH_together_are_refused():
+    text = ("name: acid\nsample: {volume: 50 mL, pH: 2, acid: 10 mmol/L}\n"
+            "analyte: {metals: {Ca: 1 mmol/L}}\ntitrant: {concentration: 0.01 M}\n")
+    with pytest.raises(ScenarioError, match="either as sample.acid"):
+        parse(text, "acid.yaml")
