@@ -245,6 +245,12 @@ class Equilibrium:
     def solids_present(self, point: int, threshold: float = 1e-12) -> list[str]:
         return [s for s, n in zip(self.system.solids, self.solid_amount[point]) if n > threshold]
 
+    def outside_domain(self) -> np.ndarray:
+        """Points where the result lies outside the model's documented domain: an ionic strength above
+        :data:`optimiser.constants.IONIC_STRENGTH_MAX_M` (beyond Davies) or a pH outside 0-14 (shape (B,), bool)."""
+        from .constants import IONIC_STRENGTH_MAX_M
+        return (self.ionic_strength_M > IONIC_STRENGTH_MAX_M * (1 + 1e-9)) | (self.pH < 0.0) | (self.pH > 14.0)
+
     def mass_balance_error(self) -> float:
         """Largest relative mass-balance error over the points and the metals and ligands, recomputed from the
         species and solids returned (an independent check of the solver's own residual)."""
