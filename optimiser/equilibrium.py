@@ -507,9 +507,14 @@ def _run_kernel(stoichiometry: kernel.Stoichiometry, points: kernel.Points, opti
     if bad.any():
         b = int(np.nonzero(bad)[0][0])
         label = labels[b] if labels is not None else f"point {b}"
-        raise ConvergenceError(f"equilibrium did not converge at {label} (of {B}) in {options.max_iter} iterations: "
-                               f"largest relative mass-balance residual {out.residual[b]:.2e}, totals "
-                               f"{points.totals[b].tolist()}")
+        I_b = float(out.ionic_strength[b])
+        from .constants import IONIC_STRENGTH_MAX_M
+        why = (f" (the ionic strength computed from the species reached {I_b:.3g} M, beyond the {IONIC_STRENGTH_MAX_M:g} M "
+               "up to which the Davies equation holds: the point lies outside the model's domain)"
+               if not np.isfinite(I_b) or I_b > IONIC_STRENGTH_MAX_M else "")
+        raise ConvergenceError(f"equilibrium did not converge at {label} (of {B}) in {options.max_iter} iterations"
+                               f"{why}: largest relative mass-balance residual {out.residual[b]:.2e}, totals "
+                               f"{points.totals[b].tolist()}", outside_domain=bool(why))
     return out
 
 

@@ -172,4 +172,12 @@ class MissingConstantError(InputError):
 
 
 class ConvergenceError(OptimiserError):
-    """The equilibrium solver did not reach its tolerance; names the point."""
+    """The equilibrium solver did not reach its tolerance; names the point and, where the point lies outside the
+    model's domain (an ionic strength beyond the Davies equation's range), says so (``outside_domain``)."""
+
+    def __init__(self, message: str, outside_domain: bool = False):
+        self.outside_domain = outside_domain
+        super().__init__(message)
+
+    def __reduce__(self):
+        return (type(self), (self.args[0], self.outside_domain))

@@ -69,6 +69,9 @@ def _solve_points(s, T, temp, I, pH):
                 flagged += int(eq.outside_domain().sum())
                 bad += int(not np.isfinite(eq.c).all())
             except ConvergenceError as exc:
+                if exc.outside_domain:  # said why: the point lies outside the documented domain
+                    flagged += 1
+                    continue
                 bad += 1
                 print(f"  failed: {s.components} pH {None if pH is None else pH[k]:.4g}, T {temp[k]:.4g} degC, "
                       f"I {'computed' if np.isnan(I[k]) else f'{I[k]:.4g} M'}: {exc}"[:600])
