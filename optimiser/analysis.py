@@ -340,13 +340,29 @@ def safety(method: Method | None) -> tuple[SafetyItem, ...]:
     return tuple(items)
 
 
-def constants_table(t: Titration | None, temperature_C: float) -> tuple[ConstantRow, ...]:
-    """Every constant the recommended curve used (once per species), with its conditions and full citation."""
+def _figure_constants(scenario: Scenario, t: Titration) -> list:
+    """The constants the log K' figure and table rely on for every metal of the sample (its complexes with the
+    titrant, its hydrolysis, its complexes with the method's ligands, the ligands' protonation), including metals
+    that the equilibrium left out (masked by an assumption, reduced)."""
+    db = database()
+    m = t.method
+    ligands = [m.titrant, *m.ligand_totals()]
+    out = [k for lig in ligands for k in db.protonation.get(lig, ())]
+    for metal in scenario.sample.metals:
+        out += list(db.hydrolysis.get(metal, ()))
+        for lig in ligands:
+            out += list(db.complexes.get((metal, lig), ()))
+    return out
+
+
+def constants_table(t: Titration | None, temperature_C: float, scenario: Scenario | None = None) -> tuple[ConstantRow, ...]:
+    """Every constant the recommended curve used and every constant the log K' figure and table rely on (once per
+    species), with its conditions and full citation."""
     if t is None:
         return ()
     db = database()
     seen, rows = set(), []
-    for k in t.constants_used:
+    for k in [*t.constants_used, *(_figure_constants(scenario, t) if scenario is not None else ())]:
         if k.species in seen:
             continue
         seen.add(k.species)
@@ -417,7 +433,7 @@ def analyse(result: SearchResult) -> Analysis:
         method=bench_method(sc, t.method, t, e.margin) if has_method else None,
         criteria=criteria(sc, e, t) if has_method else (), log_K_table=log_K_table(result),
         alternatives=alternatives(result), categories=CATEGORIES, safety=safety(t.method if has_method else None),
-        constants=constants_table(t, sc.sample.temperature_C), robustness_edges=robustness_edges(result),
+        constants=constants_table(t, sc.sample.temperature_C, sc), robustness_edges=robustness_edges(result),
         robust_pH=tuple(result.robust_pH) if result.robust_pH else None, robust_dose=dict(result.robust_dose),
         scenario_text=yaml.safe_dump(dict(sc.as_read), sort_keys=False, allow_unicode=True),
         **_titration_facts(sc, t))

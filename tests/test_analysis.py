@@ -138,3 +138,17 @@ def test_unknown_format_lists_the_known_ones(bi, tmp_path):
     from optimiser.errors import UnknownNameError
     with pytest.raises(UnknownNameError, match="known report formats: html"):
         report.write(bi[0], tmp_path, "{}\n", report_format="pdf")
+
+
+def test_the_constants_table_holds_what_the_figures_use():
+    """Iron(III) and aluminium masked by triethanolamine (an assumption, so absent from the equilibrium) still appear
+    in the log K' figure: their constants with the titrant are in the report's table."""
+    from optimiser.analysis import constants_table
+    from optimiser.scenario import demo
+    from optimiser.titration import simulate
+    sc = demo()
+    t = simulate(sc.sample, Method(10.0, "ammonia", "EDTA", 0.01, "EBT", buffer_total_M=0.3, masking=(("TEA", 0.03),)))
+    assert "Fe(III)" not in t.method.ligand_totals() and "Fe(III)" in t.masked_by_assumption
+    reactions = [r.reaction for r in constants_table(t, 25.0, sc)]
+    assert any("Fe" in r and "EDTA" in r for r in reactions) and any("Al" in r and "EDTA" in r for r in reactions)
+    assert len(reactions) == len(set(reactions))
