@@ -31,7 +31,18 @@ from .strategies import strategy
 from .titration import Titration
 
 TABLE_PH = (4.0, 6.0, 8.0, 10.0, 12.0)  # pH columns of the conditional-constant table (the method's pH is added)
-FEASIBLE_LOG_CK = 6.0  # Ringbom: about 0.1 % at dpM +/- 0.2 (textbook threshold)
+DPM_READ = 0.2  # the pM uncertainty of a visual end point in Ringbom's criterion (textbook value)
+
+
+def feasible_log_cK(target_percent: float) -> float:
+    """The log(c K') that Ringbom's error formula needs for an error within ``target_percent`` at dpM +/- 0.2:
+    Et = (10^dpM - 10^-dpM) / sqrt(c K') x 100 %, so log(c K') >= 2 log10((10^0.2 - 10^-0.2) x 100 / target); 5.96 for
+    0.1 %, the textbook's "6" (Ringbom, Complexation in Analytical Chemistry, 1963).
+
+    >>> round(feasible_log_cK(0.1), 2), round(feasible_log_cK(1.0), 2)
+    (5.96, 3.96)
+    """
+    return 2 * math.log10((10 ** DPM_READ - 10 ** -DPM_READ) * 100 / target_percent)
 MARGIN_NEEDED = 4.0  # about 1 % (common practice; 5 for about 0.3 %)
 ALTERNATIVES_PER_STRATEGY = 4
 
@@ -184,8 +195,9 @@ def criteria(scenario: Scenario, e: Evaluation, t: Titration) -> tuple[Criterion
     feas = analyte_feasibility(scenario, method)
     target = scenario.targets.max_error_percent
     return (
-        Criterion("Feasibility log(c K') of the analyte (Ringbom; c in the aliquot before titration)",
-                  f">= {FEASIBLE_LOG_CK:g} (about 0.1 % at dpM +/- 0.2)", _fmt(feas), feas >= FEASIBLE_LOG_CK),
+        Criterion("Feasibility log(c K') of the analyte (Ringbom's error formula at dpM +/- 0.2 for the target; c in the "
+                  "aliquot before titration)", f">= {feasible_log_cK(target):.2f} (for {_fmt(target)} %)", _fmt(feas),
+                  feas >= feasible_log_cK(target)),
         Criterion("Selectivity margin delta log(cK') over the strongest interferent left in solution (same c)",
                   f">= 5 for about 0.3 %, >= {MARGIN_NEEDED:g} for about 1 % (common practice)",
                   "no interferent left in solution" if e.margin is None else _fmt(e.margin),

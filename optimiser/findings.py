@@ -95,9 +95,6 @@ WORDING: dict[str, Callable[[Mapping[str, Any]], str]] = {
                                f"(the method's pH is {v['pH']:.2f})."),
     "needs_magnesium": lambda v: (f"{v['indicator']} gives a sharp calcium end point only with magnesium present: add a "
                                   "little Mg-EDTA to the buffer (it does not change the result)."),
-    "indicator_blank": lambda v: (f"{-v['blank_percent']:.2g} % of the analyte is still held by the indicator at the end "
-                                  "point (an indicator blank, included in the predicted error): standardise the titrant "
-                                  "against the same metal with the same indicator dose, or use less indicator."),
     "too_gradual": lambda v: (f"The colour change takes {v['sharpness_mL']:.2f} mL ({v['drops']:.0f} drops): too gradual to "
                               "see sharply."),
 }

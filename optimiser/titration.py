@@ -453,8 +453,6 @@ def _indicator_findings(plan: Plan, blocked: list[str], blank: float | None, sha
     if (indicator.needs_Mg_for_Ca and "Ca" in sample.analyte and sample.metals.get("Mg", 0.0) <= 0
             and method.strategy.reads_release):
         out.append(fd.warning("needs_magnesium", indicator=indicator.name))
-    if blank is not None and abs(blank) >= 0.2:
-        out.append(fd.warning("indicator_blank", blank_percent=blank))
     if sharp is not None and sharp > GRADUAL_DROPS * DROP_mL:
         out.append(fd.warning("too_gradual", sharpness_mL=sharp, drops=sharp / DROP_mL))
     return out
