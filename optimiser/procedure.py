@@ -160,7 +160,7 @@ def buffer_recipe(buffer: Buffer, total_M: float, pH: float, V0_mL: float, ionic
                         n_tot * (1 - base_frac), extra_OH_mmol)
     make = _RECIPES.get(recipe_kind(buffer))
     steps = [make(r)] if make is not None else []
-    steps.append(f"adjust to pH {pH:.1f} with a calibrated pH meter")
+    steps.append(f"adjust to pH {pH:.2f} with a calibrated pH meter")
     return steps
 
 

@@ -64,7 +64,7 @@ def test_strong_base_recipe_counts_free_hydroxide_and_precipitates():
     steps = buffer_recipe(naoh, 0.0, 12.5, 50.0, 0.05, 22.0, extra_OH_mmol=0.2)
     expected = 50.0 * free_hydroxide_M(12.5, 0.05, 22.0) + 0.2
     assert f"about {expected:.2f} mL sodium hydroxide 1 M" in steps[0]
-    assert steps[-1] == "adjust to pH 12.5 with a calibrated pH meter"
+    assert steps[-1] == "adjust to pH 12.50 with a calibrated pH meter"
     assert expected != pytest.approx(50.0 * 10 ** (12.5 - 14.0) / 0.78 + 0.2, rel=0.02)  # the old fixed pKw and gamma
 
 
