@@ -284,28 +284,46 @@ def _species_name(metal: str, ligand: str, n: int, h: int) -> str:
 def database() -> Database:
     """Read and check every table once (cached)."""
     metals = {row["id"]: row for row in data.entries("metals.yaml")}
+    charges = _database_charges(metals)
+    refs = data.references()
+
+    def make(species, stoich, log_K, row, dH=None, charge=None) -> FormationConstant:
+        return _database_constant(species, stoich, log_K, row, charges, refs, dH=dH, charge=charge)
+
+    w = data.table("water.csv")[0]
+    water = make("OH-", {H: -1}, w["log_K"], w, charge=-1)
+    return Database(charges=charges, protonation=_database_protonation(make, charges),
+                    complexes=_database_complexes(make, metals, charges), hydrolysis=_database_hydrolysis(make, w),
+                    solids=_database_solids(make, w), water=water, metals=metals, references=refs)
+
+
+def _database_charges(metals: Mapping[str, Mapping]) -> dict[str, int]:
+    """The charge of every metal, ligand and H+ (a ligand id that is also a metal id raises DataError)."""
     charges: dict[str, int] = {m: row["charge"] for m, row in metals.items()}
     for lig in data.entries("reagents.yaml", "ligands"):
         if lig["id"] in charges:
             raise DataError(f"ligand id {lig['id']!r} is also a metal id", "reagents.yaml", f"ligands/{lig['id']}", "id")
         charges[lig["id"]] = lig["charge"]
     charges[H] = 1
-    refs = data.references()
+    return charges
 
-    def make(species, stoich, log_K, row, dH=None, charge=None) -> FormationConstant:
-        if row["source"] not in refs:
-            raise DataError(f"{species}: source key {row['source']!r} is not in references.csv")
-        z = sum(nu * charges[c] for c, nu in stoich.items()) if charge is None else charge
-        return FormationConstant(
-            species=species, stoichiometry=stoich, charge=z, log_K=float(log_K),
-            temperature_C=float(row["temperature_C"]), ionic_strength_M=float(row["ionic_strength_M"]),
-            ref=row["source"], dH_kJ_mol=_float_or_none(row.get("dH_kJ_mol")) if dH is None else dH,
-            medium=row.get("medium", "") or "", note=row.get("note", "") or "",
-            uncertainty=_float_or_none(row.get("uncertainty")), charges=charges)
 
-    w = data.table("water.csv")[0]
-    water = make("OH-", {H: -1}, w["log_K"], w, charge=-1)
+def _database_constant(species, stoich, log_K, row, charges, refs, dH=None, charge=None) -> FormationConstant:
+    """The FormationConstant of a table row (its source must be in references.csv): the charge from the
+    components' unless given, the enthalpy from the row unless given."""
+    if row["source"] not in refs:
+        raise DataError(f"{species}: source key {row['source']!r} is not in references.csv")
+    z = sum(nu * charges[c] for c, nu in stoich.items()) if charge is None else charge
+    return FormationConstant(
+        species=species, stoichiometry=stoich, charge=z, log_K=float(log_K),
+        temperature_C=float(row["temperature_C"]), ionic_strength_M=float(row["ionic_strength_M"]),
+        ref=row["source"], dH_kJ_mol=_float_or_none(row.get("dH_kJ_mol")) if dH is None else dH,
+        medium=row.get("medium", "") or "", note=row.get("note", "") or "",
+        uncertainty=_float_or_none(row.get("uncertainty")), charges=charges)
 
+
+def _database_protonation(make, charges: Mapping[str, int]) -> dict[str, tuple[FormationConstant, ...]]:
+    """protonation.csv: the protonated forms of each ligand, fewest protons first."""
     protonation: dict[str, list[FormationConstant]] = {}
     for row in data.table("protonation.csv"):
         lig, h = row["ligand"], int(row["h"])
@@ -313,7 +331,12 @@ def database() -> Database:
             raise DataError(f"protonation.csv: ligand {lig!r} has no charge in reagents.yaml")
         name = f"H{h if h > 1 else ''}{lig}"
         protonation.setdefault(lig, []).append(make(name, {lig: 1, H: h}, row["log_beta"], row))
+    return {k: tuple(sorted(v, key=lambda c: c.stoichiometry[H])) for k, v in protonation.items()}
 
+
+def _database_complexes(make, metals: Mapping[str, Mapping], charges: Mapping[str, int]
+                        ) -> dict[tuple[str, str], tuple[FormationConstant, ...]]:
+    """complexes.csv: the complexes of each metal with each ligand."""
     complexes: dict[tuple[str, str], list[FormationConstant]] = {}
     for row in data.table("complexes.csv"):
         m, lig, n, h = row["metal"], row["ligand"], int(row["n"]), int(row["h"])
@@ -323,7 +346,11 @@ def database() -> Database:
         if h:
             stoich[H] = h
         complexes.setdefault((m, lig), []).append(make(_species_name(m, lig, n, h), stoich, row["log_beta"], row))
+    return {k: tuple(v) for k, v in complexes.items()}
 
+
+def _database_hydrolysis(make, w: Mapping) -> dict[str, tuple[FormationConstant, ...]]:
+    """hydrolysis.csv: the hydroxo complexes of each metal, moved to the H+ form with water's row ``w``."""
     log_Kw0 = float(w["log_K"])  # I = 0, 25 degC: used to move OH- forms to the H+ form
     dH_w = float(w["dH_kJ_mol"])
     hydrolysis: dict[str, list[FormationConstant]] = {}
@@ -336,7 +363,13 @@ def database() -> Database:
         hydrolysis.setdefault(m, []).append(
             make(name, {m: 1, H: -n}, float(row["log_beta"]) + n * log_Kw0, row,
                  dH=None if dH is None else dH + n * dH_w))
+    return {k: tuple(v) for k, v in hydrolysis.items()}
 
+
+def _database_solids(make, w: Mapping) -> dict[str, tuple[Solid, ...]]:
+    """solids.csv: the solids of each metal, as the formation of the solid from its components (hydroxides in the
+    H+ form, with water's row ``w``)."""
+    log_Kw0 = float(w["log_K"])
     solids: dict[str, list[Solid]] = {}
     for row in data.table("solids.csv"):
         m, lig, n = row["metal"], row["ligand"], int(row["n"])
@@ -350,14 +383,7 @@ def database() -> Database:
         dH = _float_or_none(row.get("dH_kJ_mol"))
         const = make(row["solid"] + "(s)", stoich, log_K, row, dH=None if dH is None else -dH, charge=0)
         solids.setdefault(m, []).append(Solid(row["solid"], m, const))
-
-    return Database(
-        charges=charges,
-        protonation={k: tuple(sorted(v, key=lambda c: c.stoichiometry[H])) for k, v in protonation.items()},
-        complexes={k: tuple(v) for k, v in complexes.items()},
-        hydrolysis={k: tuple(v) for k, v in hydrolysis.items()},
-        solids={k: tuple(v) for k, v in solids.items()},
-        water=water, metals=metals, references=refs)
+    return {k: tuple(v) for k, v in solids.items()}
 
 
 def constant_table(constants: list[FormationConstant] | tuple[FormationConstant, ...]) -> NDArray[np.float64]:

@@ -27,7 +27,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from . import kernel
-from .constants import H, FormationConstant, constant_table, corrected, database, davies_A, davies_f
+from .constants import H, Database, FormationConstant, Solid, constant_table, corrected, database, davies_A, davies_f
 from .errors import ConvergenceError, InputError
 
 Array = NDArray[np.float64]
@@ -151,53 +151,52 @@ def build_system(metals: tuple[str, ...], ligands: tuple[str, ...], solids: bool
     """
     db = database()
     metals = tuple(db.metal(m) for m in metals)
+    _check_ligands(db, ligands)
+    comps = (*metals, *ligands, H)
+    cidx = {c: i for i, c in enumerate(comps)}
+    species = _dissolved_species(db, metals, ligands, comps)
+    found = _possible_solids(db, metals, cidx) if solids else []
+    return ChemicalSystem(
+        components=comps, species=tuple(name for name, _, _, _ in species),
+        nu=np.array([_stoichiometry_row(stoich, cidx) for _, stoich, _, _ in species]),
+        charge=np.array([z for _, _, _, z in species]), constants=tuple(k for _, _, k, _ in species),
+        solids=tuple(s.name for s, _ in found), solid_metals=tuple(m for _, m in found),
+        nu_solid=np.array([_stoichiometry_row(s.constant.stoichiometry, cidx) for s, _ in found],
+                          dtype=np.int64).reshape(len(found), len(comps)),
+        solid_constants=tuple(s.constant for s, _ in found))
+
+
+def _check_ligands(db: Database, ligands: Sequence[str]) -> None:
+    """Raise InputError at the first ligand id the database does not know as a ligand."""
     for lig in ligands:
         if lig not in db.charges or lig in db.metals or lig == H:
             raise InputError(f"unknown ligand {lig!r}")
-    comps = (*metals, *ligands, H)
-    cidx = {c: i for i, c in enumerate(comps)}
-    names: list[str] = []
-    rows: list[np.ndarray] = []
-    consts: list[FormationConstant | None] = []
-    charges: list[int] = []
 
-    def add(name: str, stoich: Mapping[str, int], const: FormationConstant | None, z: int) -> None:
-        row = np.zeros(len(comps), dtype=np.int64)
-        for c, v in stoich.items():
-            row[cidx[c]] = v
-        names.append(name)
-        rows.append(row)
-        consts.append(const)
-        charges.append(z)
 
-    for c in comps:
-        add(c, {c: 1}, None, db.charges[c])
-    add("OH-", {H: -1}, db.water, -1)
-    for lig in ligands:
-        for k in db.protonation.get(lig, ()):
-            add(k.species, k.stoichiometry, k, k.charge)
+def _stoichiometry_row(stoich: Mapping[str, int], cidx: Mapping[str, int]) -> NDArray[np.int64]:
+    """A species' or solid's coefficients in the components (indexed by ``cidx``)."""
+    row = np.zeros(len(cidx), dtype=np.int64)
+    for c, v in stoich.items():
+        row[cidx[c]] = v
+    return row
+
+
+def _dissolved_species(db: Database, metals: tuple[str, ...], ligands: Sequence[str], comps: tuple[str, ...]
+                       ) -> list[tuple[str, Mapping[str, int], FormationConstant | None, int]]:
+    """(name, stoichiometry, constant, charge) of every dissolved species, in the system's order: the free
+    components (no constant), OH-, the protonated ligands, then per metal its hydroxo complexes and its complexes
+    with each ligand."""
+    formed = [db.water, *(k for lig in ligands for k in db.protonation.get(lig, ()))]
     for m in metals:
-        for k in db.hydrolysis.get(m, ()):
-            add(k.species, k.stoichiometry, k, k.charge)
+        formed += db.hydrolysis.get(m, ())
         for lig in ligands:
-            for k in db.complexes.get((m, lig), ()):
-                add(k.species, k.stoichiometry, k, k.charge)
-    s_names, s_metals, s_rows, s_consts = [], [], [], []
-    if solids:
-        for m in metals:
-            for s in db.solids.get(m, ()):
-                if all(c in cidx for c in s.constant.stoichiometry):
-                    row = np.zeros(len(comps), dtype=np.int64)
-                    for c, v in s.constant.stoichiometry.items():
-                        row[cidx[c]] = v
-                    s_names.append(s.name)
-                    s_metals.append(m)
-                    s_rows.append(row)
-                    s_consts.append(s.constant)
-    return ChemicalSystem(
-        components=comps, species=tuple(names), nu=np.array(rows), charge=np.array(charges),
-        constants=tuple(consts), solids=tuple(s_names), solid_metals=tuple(s_metals),
-        nu_solid=np.array(s_rows, dtype=np.int64).reshape(len(s_rows), len(comps)), solid_constants=tuple(s_consts))
+            formed += db.complexes.get((m, lig), ())
+    return [(c, {c: 1}, None, db.charges[c]) for c in comps] + [(k.species, k.stoichiometry, k, k.charge) for k in formed]
+
+
+def _possible_solids(db: Database, metals: tuple[str, ...], cidx: Mapping[str, int]) -> list[tuple[Solid, str]]:
+    """(solid, metal) of every solid of the metals made of the system's components only."""
+    return [(s, m) for m in metals for s in db.solids.get(m, ()) if all(c in cidx for c in s.constant.stoichiometry)]
 
 
 @dataclass(frozen=True)
@@ -379,27 +378,51 @@ class _Conditions:
 def _conditions(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None, ionic_strength_M: ArrayLike | None,
                 temperature_C: ArrayLike, options: _SolveOptions) -> _Conditions:
     """Check the inputs of :func:`solve` and broadcast them to the B points (raises InputError)."""
+    T_tot = _checked_totals(system, totals)
+    B = len(T_tot)
+    temp = _per_point(temperature_C, B)
+    bg = np.broadcast_to(np.asarray(options.background_ionic_strength_M, dtype=float), (B,))
+    auto_I = ionic_strength_M is None
+    I = bg.copy() if auto_I else _per_point(ionic_strength_M, B)
+    pH_arr = _checked_pH(pH, B)
+    A_T = davies_A(temp) if options.A is None else np.broadcast_to(np.asarray(options.A, dtype=float), (B,))
+    return _Conditions(totals=T_tot, pH=pH_arr, ionic_strength_M=I, auto_I=auto_I, background_M=bg, temperature_C=temp,
+                       davies_A=A_T, chain=_chain(options.restart, B), options=options)
+
+
+def _per_point(value: ArrayLike, B: int) -> Array:
+    """A scalar or one value per point, as a new float array of B values."""
+    return np.broadcast_to(np.asarray(value, dtype=float), (B,)).copy()
+
+
+def _checked_totals(system: ChemicalSystem, totals: ArrayLike) -> Array:
+    """The totals as a (B, C) float array: one column per component, finite and not negative but for the proton
+    excess (raises InputError)."""
     T_tot = np.atleast_2d(np.asarray(totals, dtype=float))
-    B, C = T_tot.shape
+    C = T_tot.shape[1]
     if C != len(system.components):
         raise InputError(f"totals need {len(system.components)} columns ({', '.join(system.components)}), got {C}")
     mass_cols = [i for i in range(C) if i != system.index(H)]
     if np.any(~np.isfinite(T_tot[:, mass_cols])) or np.any(T_tot[:, mass_cols] < 0):
         raise InputError("totals must be finite and not negative")
-    temp = np.broadcast_to(np.asarray(temperature_C, dtype=float), (B,)).copy()
-    bg = np.broadcast_to(np.asarray(options.background_ionic_strength_M, dtype=float), (B,))
-    auto_I = ionic_strength_M is None
-    I = bg.copy() if auto_I else np.broadcast_to(np.asarray(ionic_strength_M, dtype=float), (B,)).copy()
-    pH_arr = None if pH is None else np.broadcast_to(np.asarray(pH, dtype=float), (B,)).copy()
-    if pH_arr is not None and (np.any(~np.isfinite(pH_arr)) or np.any(pH_arr < 0) or np.any(pH_arr > 14)):
+    return T_tot
+
+
+def _checked_pH(pH: ArrayLike | None, B: int) -> Array | None:
+    """The fixed pH at the B points, None where it is free (raises InputError outside 0-14)."""
+    if pH is None:
+        return None
+    pH_arr = _per_point(pH, B)
+    if np.any(~np.isfinite(pH_arr)) or np.any(pH_arr < 0) or np.any(pH_arr > 14):
         raise InputError("pH must be between 0 and 14")
-    A_T = davies_A(temp) if options.A is None else np.broadcast_to(np.asarray(options.A, dtype=float), (B,))
-    restart = options.restart
+    return pH_arr
+
+
+def _chain(restart: ArrayLike | None, B: int) -> NDArray[np.bool_]:
+    """The points that continue from the previous one: all but the restarts (raises InputError on a wrong shape)."""
     if restart is not None and np.shape(restart) not in ((), (B,)):
         raise InputError(f"restart needs one flag per point ({B}), got shape {np.shape(restart)}")
-    chain = np.ones(B, dtype=bool) if restart is None else ~np.broadcast_to(np.asarray(restart, dtype=bool), (B,))
-    return _Conditions(totals=T_tot, pH=pH_arr, ionic_strength_M=I, auto_I=auto_I, background_M=bg, temperature_C=temp,
-                       davies_A=A_T, chain=chain, options=options)
+    return np.ones(B, dtype=bool) if restart is None else ~np.broadcast_to(np.asarray(restart, dtype=bool), (B,))
 
 
 @dataclass(frozen=True)

@@ -197,3 +197,63 @@ def test_the_kernel_is_compiled_once_for_every_kind_of_call():
     solve(s, T, pH=None, ionic_strength_M=0.1, include_solids=False)
     solve(s, T[:, [0, 1, 2, 3, 4]], pH=10.0, A=0.51, log_Kw_shift=np.full(50, -0.001))
     assert len(kernel.solve_points.signatures) == 1
+
+
+_PLAIN_PYTHON_SOLVE = """
+import json, os, sys
+import numpy as np
+from optimiser import kernel
+from optimiser.equilibrium import build_system, solve
+assert not hasattr(kernel.solve_points, "signatures"), "compiled although NUMBA_DISABLE_JIT=1"
+T = np.array(json.loads(sys.argv[1]))
+eq = solve(build_system(("Mg",), ("EDTA",)), T, pH=11.0, ionic_strength_M=None, background_ionic_strength_M=0.1)
+print(json.dumps([eq.c.tolist(), eq.solid_amount.tolist(), eq.ionic_strength_M.tolist()]))
+"""
+
+
+def test_the_kernel_runs_as_plain_python_with_the_jit_disabled():
+    """NUMBA_DISABLE_JIT=1 (the way to step through the kernel in a debugger) runs the same code across the kernel's
+    modules as Python: a curve through Mg(OH)2 precipitation, the ionic strength computed, gives the compiled answer."""
+    import json
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+    T = _mg_edta_curve(12)
+    root = Path(equilibrium.__file__).resolve().parent.parent
+    env = {**os.environ, "NUMBA_DISABLE_JIT": "1", "PYTHONPATH": str(root)}
+    run = subprocess.run([sys.executable, "-c", _PLAIN_PYTHON_SOLVE, json.dumps(T.tolist())], env=env, cwd=root,
+                         capture_output=True, text=True, timeout=600, check=False)
+    assert run.returncode == 0, run.stderr
+    c, solid, I = (np.array(a) for a in json.loads(run.stdout))
+    eq = solve(build_system(("Mg",), ("EDTA",)), T, pH=11.0, ionic_strength_M=None, background_ionic_strength_M=0.1)
+    assert (solid > 0).any() and (solid > 0).tolist() == (eq.solid_amount > 0).tolist()
+    assert c == pytest.approx(eq.c, rel=1e-9, abs=1e-30)
+    assert solid == pytest.approx(eq.solid_amount, rel=1e-9, abs=1e-20)
+    assert I == pytest.approx(eq.ionic_strength_M, rel=1e-12)
+
+
+def test_an_edited_kernel_module_drops_the_compiled_cache(tmp_path):
+    """numba checks a cached function against its own file only, and the entry holds code from every kernel module:
+    the cache goes when any of them changes, and stays while none does."""
+    from optimiser import kernel
+    for name in ("kernel.py", "kernel_newton.py"):
+        (tmp_path / name).write_text(f"# {name}\n")
+    cache = tmp_path / "__pycache__"
+    cache.mkdir()
+    files = ["kernel.solve_points-1.py311.nbi", "kernel.solve_points-1.py311.1.nbc", "kernel_newton._newton-9.py311.nbi"]
+
+    def fill():
+        for f in files:
+            (cache / f).write_bytes(b"compiled")
+    fill()
+    other = cache / "titration.cpython-311.pyc"
+    other.write_bytes(b"bytecode")
+    assert kernel._drop_stale_cache(tmp_path)  # no digest yet: whatever is there may be stale
+    assert not any((cache / f).exists() for f in files) and other.exists()
+    fill()
+    assert not kernel._drop_stale_cache(tmp_path)  # nothing changed: the cache stays
+    assert all((cache / f).exists() for f in files)
+    (tmp_path / "kernel_newton.py").write_text("# kernel_newton.py, edited\n")
+    assert kernel._drop_stale_cache(tmp_path)
+    assert not any((cache / f).exists() for f in files) and other.exists()
