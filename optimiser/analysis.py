@@ -233,11 +233,10 @@ def criteria(scenario: Scenario, e: Evaluation, t: Titration) -> tuple[Criterion
 
 
 def _largest_part(t: Titration) -> str:
-    std = t.standardised_budget
-    if not std:
+    if t.largest_part is None:
         return "-"
-    key = max(std, key=lambda k: abs(std[k]))
-    return f"largest: {budget_label(key)} {_signed(std[key])} %"
+    key, part = t.largest_part
+    return f"largest: {budget_label(key)} {_signed(part)} %"
 
 
 def _fmt(x: float | None, sig: int = 3) -> str:

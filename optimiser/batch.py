@@ -86,11 +86,10 @@ def run_one(path: str, out_dir: str, seed: int, base: str | None = None, report_
 
 def _largest_part(t: Any) -> str:
     from .readout import budget_label
-    std = t.standardised_budget if t is not None else {}
-    if not std:
+    if t is None or t.largest_part is None:
         return ""
-    key = max(std, key=lambda k: abs(std[k]))
-    return f"{budget_label(key)} {std[key]:+.3f} %"
+    key, part = t.largest_part
+    return f"{budget_label(key)} {part:+.3f} %"
 
 
 def _fmt(x, nd=2) -> str:

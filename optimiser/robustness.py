@@ -11,7 +11,7 @@ from .evaluation import Evaluation
 from .method import Method
 from .reagents import catalogue
 from .scenario import Scenario
-from .titration import simulate_many
+from .titration import simulate_many, standardised
 
 SCAN_POINTS = 81  # coarse curve points per scanned method
 
@@ -69,7 +69,7 @@ def _errors(scenario: Scenario, methods: Sequence[Method], e_std: float) -> np.n
         if t is None or t.error_percent is None or t.blocked_by or not t.indicator_usable:
             out.append(np.nan)
         else:
-            out.append(((1 + t.error_percent / 100) / (1 + e_std / 100) - 1) * 100)
+            out.append(standardised(t.error_percent, e_std))
     return np.array(out)
 
 

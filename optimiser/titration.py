@@ -143,7 +143,7 @@ class Titration:
         std = self.standardisation
         if e is None or std is None or std.error_percent is None:
             return e
-        return ((1 + e / 100) / (1 + std.error_percent / 100) - 1) * 100
+        return standardised(e, std.error_percent)
 
     @property
     def standardised_budget(self) -> dict[str, float]:
@@ -155,6 +155,15 @@ class Titration:
         scale = 1 + std.error_percent / 100
         keys = list(dict.fromkeys([*self.budget, *std.budget]))
         return {k: (self.budget.get(k, 0.0) - std.budget.get(k, 0.0)) / scale for k in keys}
+
+    @property
+    def largest_part(self) -> tuple[str, float] | None:
+        """The budget's largest part after standardisation, (key, %); None where there is no end point."""
+        std = self.standardised_budget
+        if not std:
+            return None
+        key = max(std, key=lambda k: abs(std[k]))
+        return key, std[key]
 
     @property
     def warnings(self) -> tuple[str, ...]:
@@ -180,6 +189,12 @@ class Titration:
     @property
     def ok(self) -> bool:
         return self.endpoint_mL is not None and not self.blocked_by and self.indicator_usable
+
+
+def standardised(error_percent: float, standard_error_percent: float) -> float:
+    """The error left after the titrant is standardised on a standard that shows ``standard_error_percent`` [%]:
+    (1 + e) / (1 + e_std) - 1."""
+    return ((1 + error_percent / 100) / (1 + standard_error_percent / 100) - 1) * 100
 
 
 def _check_constants(metals: Sequence[str], titrant: str) -> None:
