@@ -319,7 +319,13 @@ SCHEMAS: dict[tuple[str, str | None], Schema] = {
         "sources": Key(list, items=Key(str), reference=True), "search_default": _SEARCH_DEFAULT,
         # levels of a blocking metal that a published method tolerates [mg/L in the sample], and their source
         "tolerated": optional(dict, None, nullable=True, keys={
-            "source": Key(str, reference=True), "mg_per_L": Key(dict, items=Key(float))})},
+            "source": Key(str, reference=True), "mg_per_L": Key(dict, items=Key(float))}),
+        # the temperature the dye is read at in published practice (the solution is warmed to it), and its source
+        # a one-colour indicator: the least concentration of its metal complex the eye sees [mol/L] (the end point is
+        # read where the colour vanishes); absent for a two-colour indicator, read at the mixed colour
+        "visible_limit_M": optional(float, None, nullable=True),
+        "working_temperature": optional(dict, None, nullable=True, keys={
+            "degC": Key(float), "source": Key(str, reference=True)})},
 }
 
 

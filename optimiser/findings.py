@@ -80,6 +80,9 @@ WORDING: dict[str, Callable[[Mapping[str, Any]], str]] = {
     "slow_heated": lambda v: (f"{_join(v['metals'])} reacts with the titrant only on heating (boil a few minutes after the "
                               f"excess is added); its complex is then inert and is not displaced by {v['standard']} during "
                               "the back-titration."),
+    "working_temperature": lambda v: (f"Titrated at {v['temperature_C']:g} degC, where {v['indicator']} is read in published "
+                                      f"practice (the sample is at {v['sample_C']:g} degC and is warmed to it); constants "
+                                      "with no published enthalpy are kept at their own temperature."),
     "slow_direct": lambda v: (f"{_join(v['metals'])} reacts too slowly with {v['titrant']} at room temperature for a direct "
                               "titration: use a back-titration (common practice)."),
     # read-out

@@ -8,7 +8,7 @@ simulation, the search and the report never look a name up again or test a mode 
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from .conditional import check_concentration, check_pH
 from .constants import database
@@ -172,3 +172,17 @@ class Method:
         levels = [self.titrant_info.hazard, self.buffer_info.hazard, self.indicator_info.hazard]
         levels += [agent.hazard for agent in self.masking_agents]
         return max(levels)
+
+
+def as_titrated(sample: Sample, method: Method) -> Sample:
+    """The aliquot as ``method`` titrates it: at its indicator's working temperature where the indicator has one
+    (the procedure warms the solution to it), otherwise at the sample's own temperature [degC].
+
+    >>> s = Sample(50, {"Fe(III)": 1e-3}, ("Fe(III)",))
+    >>> as_titrated(s, Method(1.5, "nitric_acid", "EDTA", 0.01, "sulfosalicylic_acid")).temperature_C
+    50.0
+    >>> as_titrated(s, Method(1.8, "nitric_acid", "EDTA", 0.01, "xylenol_orange")).temperature_C
+    25.0
+    """
+    T = method.indicator_info.working_temperature_C
+    return sample if T is None or T == sample.temperature_C else replace(sample, temperature_C=float(T))

@@ -36,6 +36,26 @@ BUDGET_LABELS = {
 }
 
 
+def read_levels(method: Method, ref: float) -> tuple[float, float, float]:
+    """The turned fractions read as the end point and as the start and end of the colour change.
+
+    A two-colour indicator: the end point where half of its metal complex is gone (the mixed colour), the change
+    from 10 % to 90 %. A one-colour indicator (its free dye colourless, ``Indicator.visible_limit_M`` given) read
+    where the analyte releases it: the end point where its metal complex falls below the least concentration the eye
+    sees, the change from ten times that concentration to it (about the last drop that clears the colour).
+
+    Parameters
+    ----------
+    ref : float
+        Fraction of the indicator bound to the metals at the start.
+    """
+    lim = method.indicator_info.visible_limit_M
+    c = method.indicator_dose_M * ref  # the metal complex at the start [mol/L]
+    if lim is None or not method.strategy.reads_release or not lim < 0.5 * c:
+        return 0.5, 0.1, 0.9
+    return 1.0 - lim / c, max(0.1, 1.0 - 10.0 * lim / c), 1.0 - lim / c
+
+
 def budget_label(key: str) -> str:
     """Words for an error-budget key (``cotitration:<metal>`` or one of :data:`BUDGET_LABELS`)."""
     if key.startswith("cotitration:"):

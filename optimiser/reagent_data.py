@@ -69,7 +69,9 @@ def _indicator(d: Mapping[str, Any]) -> Indicator:
                      dict(d["complex_colours"]), tuple(d["usable_pH"]), tuple(d["blocked_by"]), d["needs_Mg_for_Ca"],
                      d["conc_M"], d["dose"], d["hazard"], tuple(d["sources"]), d["formula"], d["search_default"],
                      dict((d["tolerated"] or {}).get("mg_per_L", {})),
-                     (d["tolerated"] or {}).get("source"))
+                     (d["tolerated"] or {}).get("source"),
+                     (d["working_temperature"] or {}).get("degC"), (d["working_temperature"] or {}).get("source"),
+                     d["visible_limit_M"])
 
 
 def _primary(d: Mapping[str, Any]) -> PrimaryStandard:

@@ -14,7 +14,7 @@ from typing import Any
 import periodictable
 
 from . import data
-from .constants import database
+from .constants import TEMPERATURE_RANGE_C, database
 from .errors import DataError, UnknownNameError
 
 HAZARD_NAMES = ("none", "low", "moderate", "high", "severe")
@@ -258,6 +258,14 @@ class Indicator:
         Keys in ``references.csv``.
     search_default : bool
         Whether a scenario that lists no indicators searches it.
+    working_temperature_C : float or None
+        The temperature the dye is read at in published practice [degC] (the solution is warmed to it and the
+        titration simulated there); None for room temperature, i.e. the sample's own.
+    working_temperature_source : str or None
+        Key in ``references.csv`` for it.
+    visible_limit_M : float or None
+        For a one-colour indicator (colourless free dye): the least concentration of its metal complex the eye sees
+        in a titration flask [mol/L]; the end point is read where the colour vanishes. None for a two-colour one.
     """
 
     id: str
@@ -276,9 +284,16 @@ class Indicator:
     search_default: bool = True
     tolerated_mg_L: Mapping[str, float] = field(default_factory=dict)  # metal -> level a published method tolerates
     tolerated_source: str | None = None
+    working_temperature_C: float | None = None
+    working_temperature_source: str | None = None
+    visible_limit_M: float | None = None
 
     def __post_init__(self) -> None:
         _check_hazard(f"indicator {self.id}", self.hazard)
+        T = self.working_temperature_C
+        if T is not None and not TEMPERATURE_RANGE_C[0] <= T <= TEMPERATURE_RANGE_C[1]:
+            raise DataError(f"indicator {self.id}: working temperature {T:g} degC is outside the model's range "
+                            f"{TEMPERATURE_RANGE_C[0]:g}-{TEMPERATURE_RANGE_C[1]:g} degC")
         _check_range(f"indicator {self.id} usable_pH", self.usable_pH)
         if "default" not in self.complex_colours:
             raise DataError(f"indicator {self.id}: complex_colours needs a 'default' colour; got {dict(self.complex_colours)}")

@@ -26,7 +26,7 @@ from .constants import H, database
 from .equilibrium import Equilibrium, build_system, solve
 from .errors import InapplicableMethodError, MissingConstantError
 from .findings import Finding
-from .method import Method, Sample
+from .method import Method, Sample, as_titrated
 from .pretreatment import Prepared, prepare
 from .readout import DROP_mL, GRADUAL_DROPS
 from .strategies.base import Plan
@@ -211,6 +211,8 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
     """Set up one titration: pretreatment, chemical system, and the totals along the curve (by its strategy)."""
     db = database()
     strategy = method.strategy
+    warmed_from = sample.temperature_C
+    sample = as_titrated(sample, method)
     prep = prepare(sample, method)
     added = strategy.added_metals(method)
     metals = list(prep.metals) + [m for m in added if m not in prep.metals]
@@ -238,6 +240,10 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
     p = Plan(sample=sample, method=method, prep=prep, system=system, metals=metals, totals_before=totals_before,
              V_eq=sample.n_analyte_mmol / cT, V_all=sum(prep.metals[m] for m in binding) * V0 / cT, n_points=n_points,
              slow=[m for m in sample.analyte if db.metals[m].get("slow_with_titrant")], findings=list(prep.findings))
+    if sample.temperature_C != warmed_from:
+        ind = method.indicator_info
+        p.findings.append(fd.assumption("working_temperature", source=ind.working_temperature_source or "common practice",
+                                        indicator=ind.name, temperature_C=sample.temperature_C, sample_C=warmed_from))
     strategy.plan_curve(p)
     p.V = np.linspace(0.0, p.V_hi, n_points)
     return p
@@ -302,7 +308,7 @@ def _fine_grid(p: Plan, eq: Equilibrium, ref: float) -> Array | None:
     """Points around the coarse end point, for the refined solve (None where the indicator never turns)."""
     if ref < readout.UNBOUND_INDICATOR:
         return None
-    x = readout.interp_crossing(p.V, p.method.strategy.turned(p, eq, ref), 0.5)
+    x = readout.interp_crossing(p.V, p.method.strategy.turned(p, eq, ref), readout.read_levels(p.method, ref)[0])
     if x is None:
         return None
     step = p.V[1] - p.V[0]
@@ -356,7 +362,8 @@ def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
     fine = _solve_batch(live, fine_grids)
     V_eps = []
     for p, eqf, grid, ref in zip(live, fine, fine_grids, refs):
-        V_eps.append(readout.interp_crossing(grid, p.method.strategy.turned(p, eqf, ref), 0.5) if eqf is not None else None)
+        level = readout.read_levels(p.method, ref)[0]
+        V_eps.append(readout.interp_crossing(grid, p.method.strategy.turned(p, eqf, ref), level) if eqf is not None else None)
     probes = [np.array([p.V_eq_ref] + ([v] if v is not None else [])) for p, v in zip(live, V_eps)]
     probed = _solve_batch(live, probes)
     drifts = _pH_drifts(live[:n_drift], coarse, V_eps) if pH_drift else []
@@ -366,16 +373,18 @@ def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
 
 
 def _sharpness_band(p: Plan, eq: Equilibrium, eqf: Equilibrium, grid: Array, ref: float) -> tuple[float | None, float | None]:
-    """Volumes at 10 % and 90 % turned, from the refined grid (the coarse curve where it does not reach)."""
+    """Volumes where the colour change starts and ends (10 % and 90 % turned for a two-colour indicator, see
+    :func:`readout.read_levels`), from the refined grid (the coarse curve where it does not reach)."""
     turned = p.method.strategy.turned
+    _, lo, hi = readout.read_levels(p.method, ref)
     tf = turned(p, eqf, ref)
-    V10 = readout.interp_crossing(grid, tf, 0.1)
-    V90 = readout.interp_crossing(grid, tf, 0.9)
+    V10 = readout.interp_crossing(grid, tf, lo)
+    V90 = readout.interp_crossing(grid, tf, hi)
     t_coarse = turned(p, eq, ref)
-    if V10 is None or (grid[0] > 0 and tf[0] > 0.1):
-        V10 = readout.interp_crossing(p.V, t_coarse, 0.1)
+    if V10 is None or (grid[0] > 0 and tf[0] > lo):
+        V10 = readout.interp_crossing(p.V, t_coarse, lo)
     if V90 is None:
-        V90 = readout.interp_crossing(p.V, t_coarse, 0.9)
+        V90 = readout.interp_crossing(p.V, t_coarse, hi)
     return V10, V90
 
 

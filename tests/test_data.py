@@ -165,7 +165,8 @@ def test_every_indicator_source_resolves():
     ("titrants", ("EDTA", "EGTA", "CDTA", "DTPA")),
     ("buffers", ("ammonia", "acetate", "hexamine", "NaOH", "nitric_acid")),
     ("masking", ("cyanide", "fluoride", "TEA", "thiosulfate", "thiourea", "iodide", "phen", "citrate", "tartrate")),
-    ("indicators", ("EBT", "calmagite", "murexide", "calcon_carboxylic", "xylenol_orange", "PAN", "methylthymol_blue")),
+    ("indicators", ("EBT", "calmagite", "murexide", "calcon_carboxylic", "xylenol_orange", "PAN", "methylthymol_blue",
+                    "sulfosalicylic_acid")),
 ])
 def test_default_search_lists_are_the_ones_the_code_held(kind, expected):
     """The search_default flags reproduce the lists scenario.py used to hard-code, in the same order."""
