@@ -121,6 +121,8 @@ class ConstantRow:
     citation: str
     from_memory: bool
     note: str
+    uncertainty: float | None = None  # of log_K [log10 units] (data/README.md)
+    quality: str = "published"  # "published", "from memory" or "fitted to practice" (FormationConstant.quality)
 
 
 @dataclass(frozen=True)
@@ -153,6 +155,7 @@ class Analysis:
     categories: tuple[str, ...]
     assumptions: tuple[str, ...]
     uncorrected_constants: int  # constants with no enthalpy, kept at their own temperature
+    titration_temperature_C: float  # the sample's, or the indicator's working temperature it is warmed to
     masked_by_assumption: tuple[str, ...]
     safety: tuple[SafetyItem, ...]
     constants: tuple[ConstantRow, ...]
@@ -381,7 +384,7 @@ def constants_table(t: Titration | None, temperature_C: float, scenario: Scenari
         if k.dH_kJ_mol is None and abs(k.temperature_C - temperature_C) > 1e-9:
             note = (note + "; " if note else "") + f"no enthalpy: kept at its {k.temperature_C:g} degC value"
         rows.append(ConstantRow(k.reaction, k.log_K, k.temperature_C, k.ionic_strength_M, k.medium, k.dH_kJ_mol,
-                                db.references[k.ref]["citation"], k.from_memory, note))
+                                db.references[k.ref]["citation"], k.from_memory, note, k.uncertainty, k.quality))
     return tuple(rows)
 
 
@@ -424,9 +427,9 @@ def _titration_facts(sc: Scenario, t: Titration | None) -> dict[str, Any]:
     if t is None:
         return {"curve": (), "speciation": (), "assumptions": (), "uncorrected_constants": 0, "masked_by_assumption": (),
                 "volume_name": "titrant", "volume_label": "volume / mL", "pH_drift": None, "mass_balance_error": None,
-                "curve_points": 0}
-    T = sc.sample.temperature_C
-    return {
+                "curve_points": 0, "titration_temperature_C": sc.sample.temperature_C}
+    T = t.sample.temperature_C  # the temperature it is titrated at (as_titrated)
+    return {"titration_temperature_C": T,
         "curve": curve_rows(sc, t), "speciation": speciation_rows(sc, t), "assumptions": tuple(t.assumptions),
         "uncorrected_constants": sum(1 for k in t.constants_used if k.dH_kJ_mol is None and abs(k.temperature_C - T) > 1e-9),
         "masked_by_assumption": tuple(sorted(t.masked_by_assumption)), "volume_name": t.method.strategy.volume_name,
@@ -444,7 +447,7 @@ def analyse(result: SearchResult) -> Analysis:
         method=bench_method(sc, t.method, t, e.margin) if has_method else None,
         criteria=criteria(sc, e, t) if has_method else (), log_K_table=log_K_table(result),
         alternatives=alternatives(result), categories=CATEGORIES, safety=safety(t.method if has_method else None),
-        constants=constants_table(t, sc.sample.temperature_C, sc), robustness_edges=robustness_edges(result),
+        constants=constants_table(t, t.sample.temperature_C if t is not None else sc.sample.temperature_C, sc), robustness_edges=robustness_edges(result),
         robust_pH=tuple(result.robust_pH) if result.robust_pH else None, robust_dose=dict(result.robust_dose),
         scenario_text=yaml.safe_dump(dict(sc.as_read), sort_keys=False, allow_unicode=True),
         **_titration_facts(sc, t))

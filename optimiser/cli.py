@@ -249,8 +249,9 @@ def _print_constants(key: str, rows: list[dict], db) -> None:
     print(f"{key}: {len(rows)} constants (log K at the conditions of the source; the model corrects them to the sample)")
     for r in rows:
         dH = f"dH {r['dH_kJ_mol']:g} kJ/mol" if r["dH_kJ_mol"] is not None else "dH not known"
-        flag = "  FROM MEMORY" if r["from_memory"] else ""
-        print(f"  {r['reaction']:<44} log K {r['log_K']:8.3f}  {r['temperature_C']:g} degC  I {r['ionic_strength_M']:g} M "
+        flag = f"  {r['quality'].upper()}" if r["quality"] != "published" else ""
+        u = f" +/- {r['uncertainty']:g}" if r["uncertainty"] is not None else ""
+        print(f"  {r['reaction']:<44} log K {r['log_K']:8.3f}{u}  {r['temperature_C']:g} degC  I {r['ionic_strength_M']:g} M "
               f"({r['medium'] or 'n/a'})  {dH}  [{r['source']}]{flag}")
     print("sources:")
     for ref in sorted({r["source"] for r in rows}):
@@ -268,7 +269,8 @@ def _cmd_constants(a) -> int:
     key = _constants_key(a.name, db, cat)
     ks = db.constants_for(key)
     rows = [{"reaction": k.reaction, "log_K": k.log_K, "temperature_C": k.temperature_C, "ionic_strength_M": k.ionic_strength_M,
-             "medium": k.medium, "dH_kJ_mol": k.dH_kJ_mol, "source": k.ref, "from_memory": k.from_memory, "note": k.note}
+             "medium": k.medium, "dH_kJ_mol": k.dH_kJ_mol, "source": k.ref, "from_memory": k.from_memory, "note": k.note,
+             "uncertainty": k.uncertainty, "quality": k.quality}
             for k in ks]
     if a.json:
         from .results import dumps

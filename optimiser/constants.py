@@ -99,6 +99,14 @@ class FormationConstant:
         return self.ref == "memory"
 
     @property
+    def quality(self) -> str:
+        """Where the value comes from, in the report's words: ``"fitted to practice"`` (from memory, fitted to one
+        practical transition pM; its note says so), ``"from memory"`` or ``"published"``."""
+        if self.from_memory:
+            return "fitted to practice" if "fitted" in self.note.lower() else "from memory"
+        return "published"
+
+    @property
     def reaction(self) -> str:
         left = " + ".join((f"{nu} " if nu > 1 else "") + c for c, nu in self.stoichiometry.items() if nu > 0)
         released = [(f"{-nu} " if nu < -1 else "") + c for c, nu in self.stoichiometry.items() if nu < 0]

@@ -248,6 +248,9 @@ def bench_steps(scenario: Scenario, method: Method, t: Titration, recipe: list[s
                      "1 M sodium hydroxide, added slowly with swirling, so that the buffer keeps its full capacity "
                      "(common practice).")
     steps.append(f"Buffer ({method.buffer_info.name}): " + "; ".join(recipe) + ".")
+    if t.sample.temperature_C != scenario.sample.temperature_C:  # the indicator's working temperature (as_titrated)
+        steps.append(f"Warm the solution to {t.sample.temperature_C:g} degC and keep it within about 5 degC of that "
+                     f"to the end point: {ind.name} is read at that temperature in published practice.")
     colour = f"from {t.colour_change[0]} to {t.colour_change[1]}"
     if method.strategy.uses_standard:
         std = method.strategy.variant(method)
