@@ -20,7 +20,7 @@ import yaml
 from .conditional import Conditions, conditional_constant, feasibility
 from .constants import database
 from .errors import MissingConstantError
-from .method import Method
+from .method import Method, as_titrated
 from .procedure import BenchMethod, bench_method
 from .objectives import COTITRATED_SHARE_MAX, PH_DRIFT_MAX, READABLE_DROPS
 from .readout import CATEGORIES, DROP_mL, budget_label
@@ -175,8 +175,10 @@ def metal_order(scenario: Scenario) -> tuple[str, ...]:
     return tuple(s.analyte) + tuple(m for m in s.metals if m not in s.analyte)
 
 
-def _conditions(scenario: Scenario) -> Conditions:
-    return Conditions(scenario.sample.ionic_strength_M, scenario.sample.temperature_C)
+def _conditions(scenario: Scenario, method: Method | None = None) -> Conditions:
+    """The sample's ionic strength, at the temperature ``method`` titrates at (the sample's without a method)."""
+    s = scenario.sample
+    return Conditions(s.ionic_strength_M, s.temperature_C if method is None else as_titrated(s, method).temperature_C)
 
 
 def analyte_feasibility(scenario: Scenario, method: Method) -> float:
@@ -188,7 +190,7 @@ def analyte_feasibility(scenario: Scenario, method: Method) -> float:
     """
     s = scenario.sample
     ligands = method.ligand_totals()
-    return min(float(feasibility(conditional_constant(a, method.titrant, method.pH, ligands, _conditions(scenario))
+    return min(float(feasibility(conditional_constant(a, method.titrant, method.pH, ligands, _conditions(scenario, method))
                                  .log_K_conditional, s.metals[a])) for a in s.analyte)
 
 
@@ -264,7 +266,7 @@ def log_K_table(result: SearchResult) -> LogKTable:
     rows = []
     for metal in metal_order(sc):
         try:
-            vals = tuple(conditional_constant(metal, titrant, pHs, ligands, _conditions(sc)).log_K_conditional.tolist())
+            vals = tuple(conditional_constant(metal, titrant, pHs, ligands, _conditions(sc, method)).log_K_conditional.tolist())
         except MissingConstantError:
             vals = (None,) * len(pHs)
         rows.append(LogKRow(metal, "analyte" if metal in sc.sample.analyte else "interferent", sc.sample.metals[metal] * 1000,

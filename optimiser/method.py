@@ -184,5 +184,11 @@ def as_titrated(sample: Sample, method: Method) -> Sample:
     >>> as_titrated(s, Method(1.8, "nitric_acid", "EDTA", 0.01, "xylenol_orange")).temperature_C
     25.0
     """
-    T = method.indicator_info.working_temperature_C
-    return sample if T is None or T == sample.temperature_C else replace(sample, temperature_C=float(T))
+    T = titration_temperature_C(sample, method.indicator_info)
+    return sample if T == sample.temperature_C else replace(sample, temperature_C=T)
+
+
+def titration_temperature_C(sample: Sample, indicator: Indicator) -> float:
+    """The temperature a titration with ``indicator`` runs at [degC]: its working temperature, or the sample's."""
+    T = indicator.working_temperature_C
+    return sample.temperature_C if T is None else float(T)

@@ -16,6 +16,7 @@ import numpy as np
 
 from .conditional import Conditions, conditional_constant, feasibility
 from .errors import MissingConstantError
+from .method import titration_temperature_C
 from .reagents import HAZARD_NAMES, catalogue
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -206,7 +207,7 @@ def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) ->
     ligands. None when no interferent is left.
     """
     s = scenario.sample
-    cond = Conditions(s.ionic_strength_M, s.temperature_C)
+    cond = Conditions(s.ionic_strength_M, titration_temperature_C(s, catalogue().indicator(c.indicator)))
     ligands = c.ligand_totals()
 
     def log_cK(metal: str, conc: float) -> float:
@@ -236,7 +237,8 @@ def conditional_curves(scenario: Scenario, c: Candidate | None, pH: np.ndarray) 
     """log K' of every metal with the method's titrant across pH (with its buffer and masking ligands), and without
     the ligands. Without a method, the scenario's first titrant and no ligands."""
     s = scenario.sample
-    cond = Conditions(s.ionic_strength_M, s.temperature_C)
+    T = titration_temperature_C(s, catalogue().indicator(c.indicator)) if c is not None else s.temperature_C
+    cond = Conditions(s.ionic_strength_M, T)
     titrant = c.titrant if c else scenario.search.titrants[0]
     ligands = c.ligand_totals() if c is not None else {}
     out = {"pH": pH}

@@ -161,7 +161,8 @@ def test_demo_search_space_is_the_catalogue_defaults():
     assert sp.titrants == ("EDTA", "EGTA", "CDTA", "DTPA")
     assert sp.buffers == ("ammonia", "acetate", "hexamine", "NaOH", "nitric_acid")
     assert sp.masking == ("cyanide", "fluoride", "TEA", "thiosulfate", "thiourea", "iodide", "phen", "citrate", "tartrate")
-    assert sp.indicators == ("EBT", "calmagite", "murexide", "calcon_carboxylic", "xylenol_orange", "PAN", "methylthymol_blue")
+    assert sp.indicators == ("EBT", "calmagite", "murexide", "calcon_carboxylic", "xylenol_orange", "PAN", "methylthymol_blue",
+                             "sulfosalicylic_acid")
     assert sp.back_metals == ("Zn", "Mg") and sp.max_masking_agents == 1 and sp.pH_range == (7.0, 13.0)
 
 
