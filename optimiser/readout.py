@@ -56,6 +56,28 @@ def read_levels(method: Method, ref: float) -> tuple[float, float, float]:
     return 1.0 - lim / c, max(0.1, 1.0 - 10.0 * lim / c), 1.0 - lim / c
 
 
+def shows_no_change(method: Method, ref: float) -> bool:
+    """True where the indicator is too little bound at the start to show a colour change: less than
+    :data:`UNBOUND_INDICATOR` of a two-colour dye; for a one-colour dye read where the analyte releases it, a metal
+    complex below ten times the least concentration the eye sees (such a dye is dosed in excess over the metal, so a
+    small bound fraction is still an intense colour)."""
+    lim = method.indicator_info.visible_limit_M
+    if lim is None or not method.strategy.reads_release:
+        return ref < UNBOUND_INDICATOR
+    return method.indicator_dose_M * ref < 10.0 * lim
+
+
+def turned_crossing(method: Method, x: Array, turned: Array, level: float) -> float | None:
+    """First x at which the indicator has turned by ``level``: linear interpolation for a two-colour indicator; for a
+    one-colour indicator above half-turned, interpolation on log10(1 - turned), since its complex falls about
+    exponentially with the titrant near the end point (a straight line there would put the end point late on a
+    coarse curve)."""
+    if method.indicator_info.visible_limit_M is None or level <= 0.5:
+        return interp_crossing(x, turned, level)
+    y = -np.log10(np.clip(1.0 - np.asarray(turned, dtype=float), 1e-15, None))
+    return interp_crossing(x, y, -float(np.log10(1.0 - level)))
+
+
 def budget_label(key: str) -> str:
     """Words for an error-budget key (``cotitration:<metal>`` or one of :data:`BUDGET_LABELS`)."""
     if key.startswith("cotitration:"):

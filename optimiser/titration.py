@@ -306,9 +306,9 @@ def simulate(sample: Sample, method: Method, n_points: int = 161, pH_drift: bool
 
 def _fine_grid(p: Plan, eq: Equilibrium, ref: float) -> Array | None:
     """Points around the coarse end point, for the refined solve (None where the indicator never turns)."""
-    if ref < readout.UNBOUND_INDICATOR:
+    if readout.shows_no_change(p.method, ref):
         return None
-    x = readout.interp_crossing(p.V, p.method.strategy.turned(p, eq, ref), readout.read_levels(p.method, ref)[0])
+    x = readout.turned_crossing(p.method, p.V, p.method.strategy.turned(p, eq, ref), readout.read_levels(p.method, ref)[0])
     if x is None:
         return None
     step = p.V[1] - p.V[0]
@@ -363,7 +363,8 @@ def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
     V_eps = []
     for p, eqf, grid, ref in zip(live, fine, fine_grids, refs):
         level = readout.read_levels(p.method, ref)[0]
-        V_eps.append(readout.interp_crossing(grid, p.method.strategy.turned(p, eqf, ref), level) if eqf is not None else None)
+        V_eps.append(readout.turned_crossing(p.method, grid, p.method.strategy.turned(p, eqf, ref), level)
+                     if eqf is not None else None)
     probes = [np.array([p.V_eq_ref] + ([v] if v is not None else [])) for p, v in zip(live, V_eps)]
     probed = _solve_batch(live, probes)
     drifts = _pH_drifts(live[:n_drift], coarse, V_eps) if pH_drift else []
@@ -378,13 +379,13 @@ def _sharpness_band(p: Plan, eq: Equilibrium, eqf: Equilibrium, grid: Array, ref
     turned = p.method.strategy.turned
     _, lo, hi = readout.read_levels(p.method, ref)
     tf = turned(p, eqf, ref)
-    V10 = readout.interp_crossing(grid, tf, lo)
-    V90 = readout.interp_crossing(grid, tf, hi)
+    V10 = readout.turned_crossing(p.method, grid, tf, lo)
+    V90 = readout.turned_crossing(p.method, grid, tf, hi)
     t_coarse = turned(p, eq, ref)
     if V10 is None or (grid[0] > 0 and tf[0] > lo):
-        V10 = readout.interp_crossing(p.V, t_coarse, lo)
+        V10 = readout.turned_crossing(p.method, p.V, t_coarse, lo)
     if V90 is None:
-        V90 = readout.interp_crossing(p.V, t_coarse, hi)
+        V90 = readout.turned_crossing(p.method, p.V, t_coarse, hi)
     return V10, V90
 
 
@@ -415,7 +416,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     metals = plan.metals
     found = list(plan.findings)
     V, eq, (V10, V90) = _with_refined(plan, eq, eqf, grid, ref)
-    if eqf is None and ref < readout.UNBOUND_INDICATOR:
+    if eqf is None and readout.shows_no_change(method, ref):
         found.append(fd.warning("indicator_unbound", indicator=indicator.name, pH=method.pH, bound=ref))
     ep = 1 if V_ep is not None else 0  # index of the end point in the probed solve (0 is the equivalence)
     pM, bound_fraction = _curve_arrays(eq, method, metals)
@@ -430,7 +431,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     found += solid_facts
     spec_start = readout.speciation(eq, 0, prep, method, metals)
     blocked = readout.blocking(spec_start, sample, method, *((eqp, 1) if V_ep is not None else (eq, -1)))
-    if V_ep is None and not blocked and ref >= readout.UNBOUND_INDICATOR and strategy.reads_release:
+    if V_ep is None and not blocked and not readout.shows_no_change(method, ref) and strategy.reads_release:
         blocked += [m for m in (readout.inferred_blocker(eq, method, metals),) if m is not None]
     found += _indicator_findings(plan, blocked, blank, sharp if V_ep is not None else None)
     usable = indicator.usable_pH[0] <= method.pH <= indicator.usable_pH[1]
