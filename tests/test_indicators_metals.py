@@ -143,3 +143,27 @@ def test_new_metals_have_their_solids_and_hydrolysis():
     for m, solid in (("Sn(II)", "SnO"), ("Cr(III)", "Cr(OH)3")):
         assert len(db.hydrolysis[m]) >= 3 and all(k.ref == "nist46_minteq4" for k in db.hydrolysis[m])
         assert solid in {s.name for s in db.solids[m]} and all(s.constant.ref == "nist46_minteq4" for s in db.solids[m])
+
+
+
+def test_report_of_a_chromium_back_titration_renders(tmp_path):
+    """Chromium(III) boiled with the excess can be held inert entirely through the back-titration (at pH 8.79 with
+    ammonia and PAN, as a full search recommended), so it has no free-ion curve: the report leaves that line out
+    instead of failing (regression: matplotlib failed on an all-NaN marked line)."""
+    from dataclasses import replace
+
+    import numpy as np
+
+    from optimiser import report
+    from optimiser.analysis import analyse
+    sc = parse("name: chromium-back\nsample: {volume: 50 mL}\nanalyte: {metals: {Cr(III): 1 mmol/L}}\n"
+               "titrant: {concentration: 0.01 M}\ntargets: {max_error_percent: 2.0}\n"
+               "search: {pH: [8.7, 8.9], titrants: [EDTA], buffers: [ammonia], indicators: [PAN], modes: [back],"
+               " back_metals: [Zn], max_masking_agents: 0}\n")
+    r = run_search(sc, seed=1, pop_size=12, n_gen=2, with_robustness=False)
+    t = simulate(sc.sample, Method(8.79, "ammonia", "EDTA", 0.01, "PAN", buffer_total_M=10 ** -0.904, mode="back",
+                                   back_metal="Zn"), pH_drift=True, standardise=True)
+    assert not np.isfinite(t.pM["Cr(III)"]).any()  # the case the renderer must take
+    out = tmp_path / "cr.html"
+    report.FORMATS["html"](analyse(replace(r, recommended_titration=t)), out)
+    assert "<svg" in out.read_text()

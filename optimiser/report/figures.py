@@ -95,6 +95,7 @@ def titration_figure(analysis: Analysis) -> str:
     t = analysis.result.recommended_titration
     fig, ax = plt.subplots(figsize=(6.4, 3.8))
     order = [m for m in analysis.metals if m in t.pM] + [m for m in t.pM if m not in analysis.metals]
+    order = [m for m in order if np.isfinite(t.pM[m]).any()]  # a slow analyte held inert has no free ion on the curve
     for i, m in enumerate(order):
         ax.plot(t.volume_mL, t.pM[m], label=f"p{m}", **_style(i))
     lo_hi = None
