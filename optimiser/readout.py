@@ -158,11 +158,39 @@ def indicator_blank(eqp: Equilibrium, point: int, sample: Sample, method: Method
     return -100.0 * held / total if total > 0 else None
 
 
-def solid_findings(system, solids: Sequence[str], sample: Sample) -> tuple[list[str], list[Finding]]:
-    """The analyte's own solids, and a finding for every solid present."""
+def solid_findings(eq_start: Equilibrium, start: int, eq_end: Equilibrium, end: int, sample: Sample
+                   ) -> tuple[list[str], list[Finding]]:
+    """The analyte's own solids that make the method fail, and a finding for every solid present at the start
+    (``eq_start`` at ``start``) or at the end point (``eq_end`` at ``end``).
+
+    A solid that holds one of the sample's anions is named with its amount and share of its metal. A solid of the
+    analyte with an anion that can be driven off before the titration (carbonate, as CO2), present before the titrant
+    is added but gone at the end point, does not fail the method: it is a warning with the published remedies (most of
+    the titrant before the pH is raised, the five-minute rule, or the anion driven off first).
+    """
+    from .anions import ligands as anion_ligands
+
+    system = eq_start.system
+    at_start, at_end = set(eq_start.solids_present(start)), set(eq_end.solids_present(end))
     analyte_solids, out = [], []
-    for s_name in solids:
-        m = system.solid_metals[system.solids.index(s_name)]
+    for s_name in sorted(at_start | at_end):
+        j = system.solids.index(s_name)
+        m = system.solid_metals[j]
+        row = system.nu_solid[j]
+        anions = [c for c, v in zip(system.components, row) if v > 0 and c in sample.anions]
+        eq, k = (eq_start, start) if s_name in at_start else (eq_end, end)
+        if anions:
+            lig = anion_ligands()[anions[0]]
+            amount = float(eq.solid_amount[k, j])
+            total = float(eq.totals[k, system.index(m)])
+            values = dict(solid=s_name, metal=m, anion=lig.name, amount_mM=1000 * amount,
+                          share=100 * row[system.index(m)] * amount / total if total > 0 else 0.0)
+            if m in sample.analyte and lig.expel and s_name not in at_end:
+                out.append(fd.warning("anion_solid_dissolves", source="aoac_973_52", expel=lig.expel, **values))
+                continue
+            where = "before the titrant is added" if s_name not in at_end else (
+                "at the end point" if s_name not in at_start else "before the titrant is added and at the end point")
+            out.append(fd.warning("anion_solid", where=where, **values))
         if m in sample.analyte:
             analyte_solids.append(s_name)
             out.append(fd.warning("analyte_precipitates", metal=m, solid=s_name))

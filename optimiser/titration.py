@@ -22,6 +22,7 @@ from numpy.typing import NDArray
 
 from . import findings as fd
 from . import readout
+from .anions import assumptions as anion_assumptions
 from .constants import H, database
 from .equilibrium import Equilibrium, build_system, solve
 from .errors import InapplicableMethodError, MissingConstantError
@@ -218,7 +219,8 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
     if not any(prep.metals.get(a, 0.0) > 0 for a in sample.analyte):
         raise InapplicableMethodError(f"the method leaves no {', '.join(sample.analyte)} to titrate: "
                                       f"{', '.join(a for a, _ in method.masking) or 'its reagents'} mask or reduce the analyte itself")
-    system = build_system(tuple(metals), method.ligands)
+    # the sample's own anions join the method's ligands as components (after them, so a method's system is unchanged)
+    system = build_system(tuple(metals), tuple(dict.fromkeys([*method.ligands, *sample.anions])))
     comps = system.components
     V0, cT = sample.volume_mL, method.titrant_conc_M
     binding = [m for m in prep.metals if db.metals[m].get("binds_titrant", True) is not False]
@@ -228,6 +230,8 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
     for lig, c in prep.ligand_totals.items():
         base[comps.index(lig)] += c
     base[comps.index(method.indicator)] += method.indicator_dose_M
+    for anion, c in sample.anions.items():
+        base[comps.index(anion)] += c
     iY = comps.index(method.titrant)
 
     def totals_before(V: Array) -> Array:
@@ -237,7 +241,9 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
 
     p = Plan(sample=sample, method=method, prep=prep, system=system, metals=metals, totals_before=totals_before,
              V_eq=sample.n_analyte_mmol / cT, V_all=sum(prep.metals[m] for m in binding) * V0 / cT, n_points=n_points,
-             slow=[m for m in sample.analyte if db.metals[m].get("slow_with_titrant")], findings=list(prep.findings))
+             slow=[m for m in sample.analyte if db.metals[m].get("slow_with_titrant")],
+             findings=list(prep.findings) + [fd.assumption("anion_input", note=n)
+                                             for n in (*sample.anion_notes, *anion_assumptions(sample.anions))])
     strategy.plan_curve(p)
     p.V = np.linspace(0.0, p.V_hi, n_points)
     return p
@@ -417,7 +423,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     solids = {name: eq.solid_amount[:, j] for j, name in enumerate(system.solids) if np.any(eq.solid_amount[:, j] > 1e-12)}
     pre_start = tuple(eq.solids_present(0))
     pre_end = tuple(eqp.solids_present(ep))
-    analyte_solids, solid_facts = readout.solid_findings(system, sorted(set(pre_start) | set(pre_end)), sample)
+    analyte_solids, solid_facts = readout.solid_findings(eq, 0, eqp, ep, sample)
     found += solid_facts
     spec_start = readout.speciation(eq, 0, prep, method, metals)
     blocked = readout.blocking(spec_start, sample, method, *((eqp, 1) if V_ep is not None else (eq, -1)))
