@@ -25,7 +25,7 @@ MASKED_THRESHOLD = 0.99  # a blocking metal counts as masked when 99 % of it is 
 BLOCK_SHARE = 0.1  # a metal that can hold more than a tenth of the dye where it should be free blocks it (our own)
 UNBOUND_INDICATOR = 0.2  # below this bound fraction at the start, the indicator shows no colour change (our own)
 CATEGORIES = ("free", "bound to titrant", "bound to indicator", "masked", "bound to buffer ligand", "hydroxo complexes",
-              "solid")
+              "solid", "bound to sample anions")
 
 
 BUDGET_LABELS = {
@@ -55,7 +55,8 @@ def interp_crossing(x: Array, y: Array, level: float, start: int = 0) -> float |
     return float(x0 + (level - y0) * (x1 - x0) / (y1 - y0)) if y1 != y0 else float(x1)
 
 
-def _category(ligands: Sequence[str], is_free: bool, method: Method, mask_ligands: set[str]) -> str | None:
+def _category(ligands: Sequence[str], is_free: bool, method: Method, mask_ligands: set[str],
+              anions: Mapping[str, float] | None = None) -> str | None:
     if not ligands:
         return "free" if is_free else "hydroxo complexes"
     if method.titrant in ligands:
@@ -66,12 +67,15 @@ def _category(ligands: Sequence[str], is_free: bool, method: Method, mask_ligand
         return "masked"
     if method.buffer_info.ligand in ligands:
         return "bound to buffer ligand"
+    if anions and set(anions) & set(ligands):
+        return "bound to sample anions"
     return None
 
 
-def speciation(eq: Equilibrium, point: int, prep: Prepared, method: Method, metals: Sequence[str]) -> dict[str, dict[str, float]]:
+def speciation(eq: Equilibrium, point: int, prep: Prepared, method: Method, metals: Sequence[str],
+               anions: Mapping[str, float] | None = None) -> dict[str, dict[str, float]]:
     """Where each metal is at one point, as shares of its total: free, titrant, indicator, masking, buffer, hydroxo,
-    solid (:data:`CATEGORIES`)."""
+    solid, the sample's anions (:data:`CATEGORIES`)."""
     s = eq.system
     mask_ligs = {agent.ligand for agent in method.masking_agents}
     out: dict[str, dict[str, float]] = {}
@@ -83,7 +87,7 @@ def speciation(eq: Equilibrium, point: int, prep: Prepared, method: Method, meta
             if row[i] <= 0:
                 continue
             ligs = [c for c, v in zip(s.components, row) if v > 0 and c != m and c != H]
-            cat = _category(ligs, sp == m, method, mask_ligs)
+            cat = _category(ligs, sp == m, method, mask_ligs, anions)
             if cat is not None:
                 parts[cat] += row[i] * conc
         parts["solid"] = float(eq.solid_amount[point] @ s.nu_solid[:, i]) if s.solids else 0.0

@@ -425,7 +425,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     pre_end = tuple(eqp.solids_present(ep))
     analyte_solids, solid_facts = readout.solid_findings(eq, 0, eqp, ep, sample)
     found += solid_facts
-    spec_start = readout.speciation(eq, 0, prep, method, metals)
+    spec_start = readout.speciation(eq, 0, prep, method, metals, sample.anions)
     blocked = readout.blocking(spec_start, sample, method, *((eqp, 1) if V_ep is not None else (eq, -1)))
     if V_ep is None and not blocked and ref >= readout.UNBOUND_INDICATOR and strategy.reads_release:
         blocked += [m for m in (readout.inferred_blocker(eq, method, metals),) if m is not None]
@@ -442,7 +442,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
         solids=solids, equivalence_mL=float(plan.V_eq_ref), endpoints=(endpoint,), pM_eq=pM_eq, cotitrated=cotitrated,
         precipitates_start=pre_start, precipitates_end=pre_end, blocked_by=tuple(blocked), indicator_usable=usable,
         excess_mL=plan.V_x, findings=tuple(found), speciation_start=spec_start,
-        speciation_end=readout.speciation(eqp, ep, prep, method, metals), constants_used=tuple(system.uses()),
+        speciation_end=readout.speciation(eqp, ep, prep, method, metals, sample.anions), constants_used=tuple(system.uses()),
         pH_drift=drift, masked_by_assumption=prep.masked_metals,
         indicator_blank_percent=blank, slow_analytes=tuple(plan.slow), analyte_precipitates=tuple(analyte_solids),
         mass_balance_error=eq.mass_balance_error())
