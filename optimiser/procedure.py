@@ -241,11 +241,11 @@ def bench_steps(scenario: Scenario, method: Method, t: Titration, recipe: list[s
     if (strong_base and t.precipitates_start or dissolving) and not method.strategy.uses_standard:
         pre = 0.9 * (t.endpoint_mL or t.equivalence_mL)
         step = (f"Add about 90 % of the expected titrant ({pre:.1f} mL) before {'raising the pH' if strong_base else 'the buffer'}, "
-                f"so that {', '.join(t.precipitates_start)} does not form or carry down the analyte")
+                f"so that no {', '.join(t.precipitates_start)} forms to carry down the analyte")
         if dissolving:
             expel = "; or ".join(dict.fromkeys(f.values["expel"] for f in dissolving))
-            step += (f"; then finish the titration within 5 minutes (Standard Methods 2340 C). Where the titre is not "
-                     f"known in advance, first {expel}")
+            step += ("; then finish the titration within 5 minutes (the five-minute rule of Standard Methods 2340 C). "
+                     f"Where the titre is not known in advance, first {expel}")
         steps.append(step + ".")
     heated = _excess_first(method, t)
     if heated:
