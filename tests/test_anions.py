@@ -20,6 +20,7 @@ from optimiser.equilibrium import build_system, solve
 from optimiser.errors import ScenarioError
 from optimiser.objectives import titration_violations
 from optimiser.procedure import bench_method
+from optimiser.results import titration_json
 from optimiser.scenario import demo, load, parse
 from optimiser.titration import Method, Sample, plan, simulate, standard_sample
 
@@ -157,6 +158,9 @@ def test_carbonate_at_pH_12_5_warns_about_CaCO3_with_the_remedies():
     assert "analyte_solid" not in {k for k, _ in titration_violations(scenario, candidate, t)}
     steps = " ".join(bench_method(scenario, method, t, None).procedure)
     assert "90 % of the expected titrant" in steps and "5 minutes" in steps and "drive off CO2" in steps
+    # the JSON names the solid with its amount before the titrant, in mmol/L
+    doc = titration_json(t)
+    assert doc["solids_start_mmol_L"]["CaCO3"] == pytest.approx(facts[0].values["amount_mM"], rel=1e-3)
 
 
 def test_lead_sulfate_fails_a_direct_lead_titration_and_names_its_amount():
