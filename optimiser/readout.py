@@ -181,14 +181,14 @@ def solid_findings(eq_start: Equilibrium, start: int, eq_end: Equilibrium, end: 
         j = system.solids.index(s_name)
         m = system.solid_metals[j]
         row = system.nu_solid[j]
-        anions = [c for c, v in zip(system.components, row) if v > 0 and c in sample.anions]
+        anions = [c for c, v in zip(system.components, row, strict=True) if v > 0 and c in sample.anions]
         eq, k = (eq_start, start) if s_name in at_start else (eq_end, end)
         if anions:
             lig = anion_ligands()[anions[0]]
             amount = float(eq.solid_amount[k, j])
             total = float(eq.totals[k, system.index(m)])
-            values = dict(solid=s_name, metal=m, anion=lig.name, amount_mM=1000 * amount,
-                          share=100 * row[system.index(m)] * amount / total if total > 0 else 0.0)
+            values = {"solid": s_name, "metal": m, "anion": lig.name, "amount_mM": 1000 * amount,
+                      "share": 100 * row[system.index(m)] * amount / total if total > 0 else 0.0}
             if m in sample.analyte and lig.expel and s_name not in at_end:
                 out.append(fd.warning("anion_solid_dissolves", source="aoac_973_52", expel=lig.expel, **values))
                 continue

@@ -15,9 +15,9 @@ from pathlib import Path
 from typing import Any
 
 from . import yaml_reader
-from .constants import IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C, database
 from .anions import anion_totals
 from .anions import resolve as anion_input
+from .constants import IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C, database
 from .errors import InputError, OptimiserError, ScenarioError, UnknownNameError, printable, quoted
 from .method import Sample
 from .objectives import OBJECTIVES as _OBJECTIVE_REGISTRY
@@ -313,7 +313,6 @@ def _anions(r: _Reader) -> tuple[dict[str, float], tuple[str, ...]]:
         key = ("sample", "anions", name)
         try:
             one, _ = anion_totals({name: block[name]})
-            entry = anion_input(str(name))
         except UnknownNameError as exc:
             raise r.error(str(exc), key + ("<key>",)) from None
         except InputError as exc:
