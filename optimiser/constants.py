@@ -203,7 +203,8 @@ class Solid:
     """A sparingly soluble solid, written as its formation from dissolved components.
 
     ``constant.log_K`` is -log Ksp in the H+ form for hydroxides (M + n H2O - n H+ = M(OH)n(s)) and
-    -log Ksp for salts of a ligand (M + n L = ML_n(s)).
+    -log Ksp for salts of a ligand (m M + n L + h H+ = M_m H_h L_n(s); h = 1 for CaHPO4, -2 for the basic carbonate
+    Cu2(OH)2CO3).
     """
 
     name: str
@@ -386,8 +387,11 @@ def _database_solids(make, w: Mapping) -> dict[str, tuple[Solid, ...]]:
             if float(row["ionic_strength_M"]) != 0.0:
                 raise DataError("solids.csv: hydroxide rows must be at I = 0")
             stoich, log_K = {m: 1, H: -n}, -(log_Ksp - n * log_Kw0)
-        else:
-            stoich, log_K = {m: 1, lig: n}, -log_Ksp
+        else:  # solid = m M + n L + h H+ (a salt of a ligand; h for acid and basic salts)
+            stoich, log_K = {m: int(row.get("m") or 1), lig: n}, -log_Ksp
+            h = int(row.get("h") or 0)
+            if h:
+                stoich[H] = h
         dH = _float_or_none(row.get("dH_kJ_mol"))
         const = make(row["solid"] + "(s)", stoich, log_K, row, dH=None if dH is None else -dH, charge=0)
         solids.setdefault(m, []).append(Solid(row["solid"], m, const))

@@ -57,8 +57,11 @@ COLUMNS: dict[str, dict[str, Column]] = {
     "complexes.csv": {"metal": Column(), "ligand": Column(), "n": Column(int), "h": Column(int), "log_beta": Column(float),
                       **_CONDITIONS, "medium": _OPTIONAL_TEXT, **_DH, **_UNCERTAINTY, **_SOURCE},
     "hydrolysis.csv": {"metal": Column(), "n": Column(int), "log_beta": Column(float), **_CONDITIONS, **_DH, **_UNCERTAINTY, **_SOURCE},
+    # m: metal ions per formula unit (1 if empty); h: H+ in the dissolution products (solid = m M + n X + h H+; HPO4
+    # salts h = 1, basic salts such as malachite h = -2; 0 if empty)
     "solids.csv": {"solid": Column(), "metal": Column(), "ligand": Column(), "n": Column(int), "log_Ksp": Column(float),
-                   **_CONDITIONS, **_DH, **_UNCERTAINTY, **_SOURCE},
+                   **_CONDITIONS, **_DH, **_UNCERTAINTY, **_SOURCE, "m": Column(int, required=False),
+                   "h": Column(int, required=False)},
     # the enthalpy of water is required: it moves the hydrolysis constants from the OH- to the H+ form
     "water.csv": {"reaction": Column(), "log_K": Column(float), **_CONDITIONS, "dH_kJ_mol": Column(float), **_UNCERTAINTY, **_SOURCE},
     "references.csv": {"key": Column(), "citation": Column(), "location": _OPTIONAL_TEXT, "note": _OPTIONAL_TEXT},
@@ -311,6 +314,12 @@ SCHEMAS: dict[tuple[str, str | None], Schema] = {
     ("reagents.yaml", "safety_rules"): {
         "name": Key(str), "when_all": Key(list, items=Key(str)), "unless_any": optional(list, [], items=Key(str)),
         "hazard": _HAZARD, "cautions": _TEXTS},
+    ("anions.yaml", "ligands"): {
+        "id": Key(str), "name": Key(str), "expel": optional(str), "expel_source": optional(str, reference=True),
+        "assumption": optional(str, "")},
+    ("anions.yaml", "inputs"): {
+        "id": Key(str), "ligand": Key(str), "formula": Key(str), "as": Key(dict, items=Key(float)), "molar": Key(str),
+        "aliases": _ALIASES, "note": optional(str, "")},
     ("indicators.yaml", None): {
         "id": Key(str), "name": Key(str), "aliases": _ALIASES,
         "forms": Key(dict, items=Key(str)), "complex_colours": Key(dict, items=Key(str)),

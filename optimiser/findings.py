@@ -67,6 +67,8 @@ def _join(names: Iterable[str]) -> str:
 WORDING: dict[str, Callable[[Mapping[str, Any]], str]] = {
     # pretreatment (reagents that reduce or mask by a stated assumption)
     "reduction": lambda v: f"{v['agent']}: {v['note']}.",
+    # the sample's anions as given (optimiser.anions)
+    "anion_input": lambda v: f"Sample anions: {v['note']}.",
     "reduction_incomplete": lambda v: (f"{v['agent']} dose is too small to reduce all {v['metal']} "
                                        f"({100 * v['fraction']:.0f} % reduced)."),
     "masked_by_assumption": lambda v: f"{v['agent']}: {v['note']}.",
@@ -93,6 +95,14 @@ WORDING: dict[str, Callable[[Mapping[str, Any]], str]] = {
     "solid_carries_down": lambda v: (f"{v['solid']} precipitates: it can adsorb or carry down {_join(v['analyte'])} and the "
                                      "indicator (a negative error that grows with the precipitate); add most of the titrant "
                                      "before the pH is raised (Flaschka and Ganchoff)."),
+    "anion_solid": lambda v: (f"{v['solid']} ({v['metal']} with the sample's {v['anion']}) precipitates {v['where']}: "
+                              f"{v['amount_mM']:.3g} mmol/L, {v['share']:.0f} % of the {v['metal']}."),
+    "anion_solid_dissolves": lambda v: (
+        f"{v['solid']} ({v['metal']} with the sample's {v['anion']}) is supersaturated once the pH is raised: at "
+        f"equilibrium {v['amount_mM']:.3g} mmol/L ({v['share']:.0f} % of the {v['metal']}) precipitates before the "
+        "titrant binds it. It forms within minutes and redissolves only slowly as the titrant is added, so the end "
+        "point is low or returns (the reason for the water standards' rule to finish within 5 minutes of raising the "
+        f"pH). Add about 90 % of the expected titrant before the pH is raised, or first {v['expel']}."),
     "blocked": lambda v: f"{_join(v['metals'])} block(s) {v['indicator']} at this pH and dose: mask it, or change the method.",
     "indicator_pH": lambda v: (f"{v['indicator']} shows its colour change only between pH {v['low']:g} and {v['high']:g} "
                                f"(the method's pH is {v['pH']:.2f})."),

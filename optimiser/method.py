@@ -10,6 +10,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
 
+from .anions import ligands as anion_ligands
 from .conditional import check_concentration, check_pH
 from .constants import database
 from .errors import InputError
@@ -34,6 +35,11 @@ class Sample:
         [degC].
     acid_M : float
         Strong acid the sample holds (an acid-preserved sample), as H+ [mol/L]; neutralised before the buffer.
+    anions : Mapping[str, float]
+        The sample's own anions: ligand id (``"carbonate"``, ``"sulfate"``, ``"phosphate"``, ``"chloride"``; see
+        :mod:`optimiser.anions`) -> total in the aliquot [mol/L].
+    anion_notes : tuple of str
+        The assumptions behind the anions as given (alkalinity taken as hydrogencarbonate, ...).
     """
 
     volume_mL: float
@@ -42,6 +48,8 @@ class Sample:
     ionic_strength_M: float = 0.1
     temperature_C: float = 25.0
     acid_M: float = 0.0
+    anions: Mapping[str, float] = field(default_factory=dict)
+    anion_notes: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         db = database()
@@ -58,6 +66,12 @@ class Sample:
         object.__setattr__(self, "analyte", analyte)
         if not 0.0 <= self.acid_M <= 2.0:
             raise InputError(f"the sample's acid must be between 0 and 2 mol/L of H+; got {self.acid_M}")
+        known = anion_ligands()
+        for a in self.anions:
+            if a not in known:
+                raise InputError(f"unknown sample anion {a!r}; known: {', '.join(known)}")
+        object.__setattr__(self, "anions", {a: float(check_concentration(c, f"concentration of {a}"))
+                                            for a, c in self.anions.items()})
 
     @property
     def interferents(self) -> tuple[str, ...]:

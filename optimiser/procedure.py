@@ -12,7 +12,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 from .conditional import Conditions, ligand_fractions
-from .constants import database, davies_A, davies_f, log_K_at
+from .constants import H, database, davies_A, davies_f, log_K_at
 from .method import Method
 from .reagents import HAZARD_NAMES, Buffer, molar_mass
 from .scenario import Scenario
@@ -190,10 +190,12 @@ def masking_doses(method: Method, V0_mL: float) -> list[MaskingDose]:
 
 
 def hydroxide_in_solids_mmol(titration: Titration) -> float:
-    """Hydroxide taken up by the solids present at the start [mmol per aliquot] (as M(OH)2)."""
+    """Hydroxide taken up by the solids present at the start [mmol per aliquot]: the H+ each solid releases as it
+    forms (2 per M(OH)2; none for a salt of the sample's anions such as CaCO3)."""
     s = titration.sample
-    return sum(2 * sp["solid"] * s.metals.get(metal, 0.0) * s.volume_mL
-               for metal, sp in titration.speciation_start.items() if sp.get("solid", 0) > 0)
+    released = {k.species[:-3]: max(-k.stoichiometry.get(H, 0), 0) for k in titration.constants_used
+                if k.species.endswith("(s)")}
+    return sum(released.get(name, 0) * float(amount[0]) * s.volume_mL for name, amount in titration.solids.items())
 
 
 def result_formula(scenario: Scenario, method: Method) -> str:
@@ -234,9 +236,17 @@ def bench_steps(scenario: Scenario, method: Method, t: Titration, recipe: list[s
     V0, cT = scenario.sample.volume_mL, method.titrant_conc_M
     ind, titrant = method.indicator_info, method.titrant
     steps = [f"Pipette {V0:g} mL of sample into a titration flask."]
-    if recipe_kind(method.buffer_info) == STRONG_BASE and t.precipitates_start and not method.strategy.uses_standard:
-        steps.append(f"Add about 90 % of the expected titrant ({0.9 * (t.endpoint_mL or t.equivalence_mL):.1f} mL) before "
-                     f"raising the pH, so that {', '.join(t.precipitates_start)} does not carry down the analyte.")
+    dissolving = [f for f in t.findings if f.kind == "anion_solid_dissolves"]  # e.g. CaCO3 from the sample's carbonate
+    strong_base = recipe_kind(method.buffer_info) == STRONG_BASE
+    if (strong_base and t.precipitates_start or dissolving) and not method.strategy.uses_standard:
+        pre = 0.9 * (t.endpoint_mL or t.equivalence_mL)
+        step = (f"Add about 90 % of the expected titrant ({pre:.1f} mL) before {'raising the pH' if strong_base else 'the buffer'}, "
+                f"so that no {', '.join(t.precipitates_start)} forms to carry down the analyte")
+        if dissolving:
+            expel = "; or ".join(dict.fromkeys(f.values["expel"] for f in dissolving))
+            step += ("; then finish the titration within 5 minutes (the five-minute rule of Standard Methods 2340 C). "
+                     f"Where the titre is not known in advance, first {expel}")
+        steps.append(step + ".")
     heated = _excess_first(method, t)
     if heated:
         steps.append(f"Add {t.excess_mL:.2f} mL of {cT:g} M {titrant} (an excess) to the sample before it is buffered "

@@ -25,7 +25,7 @@ MASKED_THRESHOLD = 0.99  # a blocking metal counts as masked when 99 % of it is 
 BLOCK_SHARE = 0.1  # a metal that can hold more than a tenth of the dye where it should be free blocks it (our own)
 UNBOUND_INDICATOR = 0.2  # below this bound fraction at the start, the indicator shows no colour change (our own)
 CATEGORIES = ("free", "bound to titrant", "bound to indicator", "masked", "bound to buffer ligand", "hydroxo complexes",
-              "solid")
+              "solid", "bound to sample anions")
 
 
 BUDGET_LABELS = {
@@ -97,7 +97,8 @@ def interp_crossing(x: Array, y: Array, level: float, start: int = 0) -> float |
     return float(x0 + (level - y0) * (x1 - x0) / (y1 - y0)) if y1 != y0 else float(x1)
 
 
-def _category(ligands: Sequence[str], is_free: bool, method: Method, mask_ligands: set[str]) -> str | None:
+def _category(ligands: Sequence[str], is_free: bool, method: Method, mask_ligands: set[str],
+              anions: Mapping[str, float] | None = None) -> str | None:
     if not ligands:
         return "free" if is_free else "hydroxo complexes"
     if method.titrant in ligands:
@@ -108,12 +109,15 @@ def _category(ligands: Sequence[str], is_free: bool, method: Method, mask_ligand
         return "masked"
     if method.buffer_info.ligand in ligands:
         return "bound to buffer ligand"
+    if anions and set(anions) & set(ligands):
+        return "bound to sample anions"
     return None
 
 
-def speciation(eq: Equilibrium, point: int, prep: Prepared, method: Method, metals: Sequence[str]) -> dict[str, dict[str, float]]:
+def speciation(eq: Equilibrium, point: int, prep: Prepared, method: Method, metals: Sequence[str],
+               anions: Mapping[str, float] | None = None) -> dict[str, dict[str, float]]:
     """Where each metal is at one point, as shares of its total: free, titrant, indicator, masking, buffer, hydroxo,
-    solid (:data:`CATEGORIES`)."""
+    solid, the sample's anions (:data:`CATEGORIES`)."""
     s = eq.system
     mask_ligs = {agent.ligand for agent in method.masking_agents}
     out: dict[str, dict[str, float]] = {}
@@ -125,7 +129,7 @@ def speciation(eq: Equilibrium, point: int, prep: Prepared, method: Method, meta
             if row[i] <= 0:
                 continue
             ligs = [c for c, v in zip(s.components, row) if v > 0 and c != m and c != H]
-            cat = _category(ligs, sp == m, method, mask_ligs)
+            cat = _category(ligs, sp == m, method, mask_ligs, anions)
             if cat is not None:
                 parts[cat] += row[i] * conc
         parts["solid"] = float(eq.solid_amount[point] @ s.nu_solid[:, i]) if s.solids else 0.0
@@ -200,11 +204,39 @@ def indicator_blank(eqp: Equilibrium, point: int, sample: Sample, method: Method
     return -100.0 * held / total if total > 0 else None
 
 
-def solid_findings(system, solids: Sequence[str], sample: Sample) -> tuple[list[str], list[Finding]]:
-    """The analyte's own solids, and a finding for every solid present."""
+def solid_findings(eq_start: Equilibrium, start: int, eq_end: Equilibrium, end: int, sample: Sample
+                   ) -> tuple[list[str], list[Finding]]:
+    """The analyte's own solids that make the method fail, and a finding for every solid present at the start
+    (``eq_start`` at ``start``) or at the end point (``eq_end`` at ``end``).
+
+    A solid that holds one of the sample's anions is named with its amount and share of its metal. A solid of the
+    analyte with an anion that can be driven off before the titration (carbonate, as CO2), present before the titrant
+    is added but gone at the end point, does not fail the method: it is a warning with the published remedies (most of
+    the titrant before the pH is raised, the five-minute rule, or the anion driven off first).
+    """
+    from .anions import ligands as anion_ligands
+
+    system = eq_start.system
+    at_start, at_end = set(eq_start.solids_present(start)), set(eq_end.solids_present(end))
     analyte_solids, out = [], []
-    for s_name in solids:
-        m = system.solid_metals[system.solids.index(s_name)]
+    for s_name in sorted(at_start | at_end):
+        j = system.solids.index(s_name)
+        m = system.solid_metals[j]
+        row = system.nu_solid[j]
+        anions = [c for c, v in zip(system.components, row, strict=True) if v > 0 and c in sample.anions]
+        eq, k = (eq_start, start) if s_name in at_start else (eq_end, end)
+        if anions:
+            lig = anion_ligands()[anions[0]]
+            amount = float(eq.solid_amount[k, j])
+            total = float(eq.totals[k, system.index(m)])
+            values = {"solid": s_name, "metal": m, "anion": lig.name, "amount_mM": 1000 * amount,
+                      "share": 100 * row[system.index(m)] * amount / total if total > 0 else 0.0}
+            if m in sample.analyte and lig.expel and s_name not in at_end:
+                out.append(fd.warning("anion_solid_dissolves", source="aoac_973_52", expel=lig.expel, **values))
+                continue
+            where = "before the titrant is added" if s_name not in at_end else (
+                "at the end point" if s_name not in at_start else "before the titrant is added and at the end point")
+            out.append(fd.warning("anion_solid", where=where, **values))
         if m in sample.analyte:
             analyte_solids.append(s_name)
             out.append(fd.warning("analyte_precipitates", metal=m, solid=s_name))

@@ -33,6 +33,11 @@ def _r(x: float | None, nd: int = 4) -> float | None:
     return float(round(float(x), nd))
 
 
+def solids_start_mmol_L(t) -> dict[str, float]:
+    """Each solid present before the titrant is added, with its amount [mmol per litre of the aliquot]."""
+    return {name: _r(1000 * float(amount[0]), 4) for name, amount in t.solids.items() if amount[0] > 1e-12}
+
+
 def _method_json(result: SearchResult, e: Evaluation) -> dict[str, Any]:
     c = e.candidate
     t = e.titration
@@ -47,6 +52,7 @@ def _method_json(result: SearchResult, e: Evaluation) -> dict[str, Any]:
         "selectivity_margin_log": _r(e.margin, 3),
         "endpoint_sharpness_mL": _r(e.sharpness_mL), "hazard": HAZARD_NAMES[e.hazard], "strategy": strategy_of(e),
         "precipitates": sorted(set(t.precipitates_start) | set(t.precipitates_end)) if t is not None else [],
+        "solids_start_mmol_L": solids_start_mmol_L(t) if t is not None else {},
         "warnings": list(t.warnings) if t is not None else list(e.violations), "feasible": e.feasible,
         "violations": list(e.violations),
     }
@@ -101,6 +107,7 @@ def titration_json(t: Titration, every: int = 1) -> dict[str, Any]:
         "cotitrated": {m: _r(v, 6) for m, v in t.cotitrated.items()},
         "precipitates": sorted(set(t.precipitates_start) | set(t.precipitates_end)),
         "precipitates_start": list(t.precipitates_start), "precipitates_endpoint": list(t.precipitates_end),
+        "solids_start_mmol_L": solids_start_mmol_L(t),
         "blocked_by": list(t.blocked_by), "colour_change": list(t.colour_change), "mode": t.method.mode,
         "excess_mL": _r(t.excess_mL), "pH_drift": _r(t.pH_drift), "drop_mL": DROP_mL,
         "warnings": list(t.warnings), "assumptions": list(t.assumptions),

@@ -15,8 +15,10 @@ from pathlib import Path
 from typing import Any
 
 from . import yaml_reader
+from .anions import anion_totals
+from .anions import resolve as anion_input
 from .constants import IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C, database
-from .errors import InputError, OptimiserError, ScenarioError, printable, quoted
+from .errors import InputError, OptimiserError, ScenarioError, UnknownNameError, printable, quoted
 from .method import Sample
 from .objectives import OBJECTIVES as _OBJECTIVE_REGISTRY
 from .reagents import HAZARD_NAMES, catalogue
@@ -38,7 +40,8 @@ MODES = strategy_ids()  # the strategies a search may use (optimiser.strategies)
 
 _SCHEMA: dict[str, Any] = {
     "name": str, "description": str,
-    "sample": {"volume": None, "ionic_strength": None, "temperature": None, "matrix": str, "acid": None, "pH": None},
+    "sample": {"volume": None, "ionic_strength": None, "temperature": None, "matrix": str, "acid": None, "pH": None,
+               "anions": dict},
     "analyte": {"name": None, "metals": dict, "report_as": str},
     "interferents": dict,
     "titrant": {"concentration": None, "burette": None},
@@ -300,6 +303,33 @@ def _acid(r: _Reader) -> float:
     return 0.0
 
 
+def _anions(r: _Reader) -> tuple[dict[str, float], tuple[str, ...]]:
+    """The sample's anions from ``sample.anions`` (name: concentration; :mod:`optimiser.anions`): ligand totals
+    [mol/L] and the notes of the inputs used; none when the key is absent."""
+    block = r.doc["sample"].get("anions") or {}
+    lo, hi = CONCENTRATION_RANGE_M
+    totals: dict[str, float] = {}
+    for name in block:
+        key = ("sample", "anions", name)
+        try:
+            one, _ = anion_totals({name: block[name]})
+        except UnknownNameError as exc:
+            raise r.error(str(exc), key + ("<key>",)) from None
+        except InputError as exc:
+            raise r.error(f"{_dotted(key)}: {exc}", key) from None
+        (ligand, c), = one.items()
+        if ligand in totals:
+            other = next(n for n in block if n != name and anion_input(str(n)).ligand == ligand)
+            raise r.error(f"sample.anions: {quoted(name)} and {quoted(other)} both give the sample's {ligand}; give one "
+                          "of them", key + ("<key>",))
+        if not lo <= c <= hi:
+            raise r.error(f"{_dotted(key)} must be between {lo:g} and {hi:g} mol/L (leave out an anion that is absent); "
+                          f"got {c:.4g} mol/L", key)
+        totals[ligand] = c
+    notes = tuple(dict.fromkeys(anion_input(str(n)).note for n in block if anion_input(str(n)).note))
+    return totals, notes
+
+
 def _add_metals(r: _Reader, block: Mapping, key: tuple, metals: dict[str, float]) -> list[str]:
     """Read ``block`` (metal: concentration) into ``metals``; the ids added, in order."""
     db = database()
@@ -490,9 +520,10 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
     cT, burette = _titrant(r)
     search = _search(r)
     targets = _targets(r)
+    anions, anion_notes = _anions(r)
     try:
         sample = Sample(volume_mL=V0, metals=metals, analyte=tuple(analyte), ionic_strength_M=I, temperature_C=T,
-                        acid_M=_acid(r))
+                        acid_M=_acid(r), anions=anions, anion_notes=anion_notes)
     except InputError as exc:
         raise r.error(str(exc), ("analyte",)) from None
     return Scenario(name=name, description=description, sample=sample, analyte_label=label, report_as=report_as,

@@ -22,6 +22,7 @@ from numpy.typing import NDArray
 
 from . import findings as fd
 from . import readout
+from .anions import assumptions as anion_assumptions
 from .constants import H, database
 from .equilibrium import Equilibrium, build_system, solve
 from .errors import InapplicableMethodError, MissingConstantError
@@ -220,7 +221,8 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
     if not any(prep.metals.get(a, 0.0) > 0 for a in sample.analyte):
         raise InapplicableMethodError(f"the method leaves no {', '.join(sample.analyte)} to titrate: "
                                       f"{', '.join(a for a, _ in method.masking) or 'its reagents'} mask or reduce the analyte itself")
-    system = build_system(tuple(metals), method.ligands)
+    # the sample's own anions join the method's ligands as components (after them, so a method's system is unchanged)
+    system = build_system(tuple(metals), tuple(dict.fromkeys([*method.ligands, *sample.anions])))
     comps = system.components
     V0, cT = sample.volume_mL, method.titrant_conc_M
     binding = [m for m in prep.metals if db.metals[m].get("binds_titrant", True) is not False]
@@ -230,6 +232,8 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
     for lig, c in prep.ligand_totals.items():
         base[comps.index(lig)] += c
     base[comps.index(method.indicator)] += method.indicator_dose_M
+    for anion, c in sample.anions.items():
+        base[comps.index(anion)] += c
     iY = comps.index(method.titrant)
 
     def totals_before(V: Array) -> Array:
@@ -239,7 +243,9 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
 
     p = Plan(sample=sample, method=method, prep=prep, system=system, metals=metals, totals_before=totals_before,
              V_eq=sample.n_analyte_mmol / cT, V_all=sum(prep.metals[m] for m in binding) * V0 / cT, n_points=n_points,
-             slow=[m for m in sample.analyte if db.metals[m].get("slow_with_titrant")], findings=list(prep.findings))
+             slow=[m for m in sample.analyte if db.metals[m].get("slow_with_titrant")],
+             findings=list(prep.findings) + [fd.assumption("anion_input", note=n)
+                                             for n in (*sample.anion_notes, *anion_assumptions(sample.anions))])
     if sample.temperature_C != warmed_from:
         ind = method.indicator_info
         p.findings.append(fd.assumption("working_temperature", source=ind.working_temperature_source or "common practice",
@@ -427,9 +433,9 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     solids = {name: eq.solid_amount[:, j] for j, name in enumerate(system.solids) if np.any(eq.solid_amount[:, j] > 1e-12)}
     pre_start = tuple(eq.solids_present(0))
     pre_end = tuple(eqp.solids_present(ep))
-    analyte_solids, solid_facts = readout.solid_findings(system, sorted(set(pre_start) | set(pre_end)), sample)
+    analyte_solids, solid_facts = readout.solid_findings(eq, 0, eqp, ep, sample)
     found += solid_facts
-    spec_start = readout.speciation(eq, 0, prep, method, metals)
+    spec_start = readout.speciation(eq, 0, prep, method, metals, sample.anions)
     blocked = readout.blocking(spec_start, sample, method, *((eqp, 1) if V_ep is not None else (eq, -1)))
     if V_ep is None and not blocked and not readout.shows_no_change(method, ref) and strategy.reads_release:
         blocked += [m for m in (readout.inferred_blocker(eq, method, metals),) if m is not None]
@@ -446,7 +452,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
         solids=solids, equivalence_mL=float(plan.V_eq_ref), endpoints=(endpoint,), pM_eq=pM_eq, cotitrated=cotitrated,
         precipitates_start=pre_start, precipitates_end=pre_end, blocked_by=tuple(blocked), indicator_usable=usable,
         excess_mL=plan.V_x, findings=tuple(found), speciation_start=spec_start,
-        speciation_end=readout.speciation(eqp, ep, prep, method, metals), constants_used=tuple(system.uses()),
+        speciation_end=readout.speciation(eqp, ep, prep, method, metals, sample.anions), constants_used=tuple(system.uses()),
         pH_drift=drift, masked_by_assumption=prep.masked_metals,
         indicator_blank_percent=blank, slow_analytes=tuple(plan.slow), analyte_precipitates=tuple(analyte_solids),
         mass_balance_error=eq.mass_balance_error())

@@ -133,7 +133,7 @@ def molar_mass_of_metal(metal: str) -> float:
     return float(getattr(periodictable, element).mass)
 
 
-def concentration_M(value: object, species: str | None = None) -> float:
+def concentration_M(value: object, species: str | None = None, molar_mass_g_mol: float | None = None) -> float:
     """A concentration in mol/L from a string with units, for a metal (mass units need ``species``).
 
     Parameters
@@ -143,6 +143,8 @@ def concentration_M(value: object, species: str | None = None) -> float:
         their unit: mg/L and mmol/L differ by a factor of 25 to 200, and both are common).
     species : str, optional
         Metal id whose molar mass converts mass concentrations.
+    molar_mass_g_mol : float, optional
+        The molar mass that converts a mass concentration written without "as" [g/mol] (instead of ``species``).
 
     Examples
     --------
@@ -173,6 +175,8 @@ def concentration_M(value: object, species: str | None = None) -> float:
                              f"got {quoted(value)}")
         return _converted(q, ureg.mol / ureg.L, value)
     if q.check("[mass] / [length] ** 3"):
+        if molar_mass is None:
+            molar_mass = molar_mass_g_mol
         if molar_mass is None:
             if species is None:
                 raise InputError(f"a mass concentration needs a species to convert it; give {quoted(value)} in mol/L")

@@ -103,7 +103,7 @@ SCALAR_PATHS = [("name",), ("description",), ("sample", "volume"), ("sample", "i
 LIST_PATHS = [("search", k) for k in ("pH", "titrants", "buffers", "masking", "indicators", "forbid", "modes",
                                       "back_metals")]
 MAPPING_PATHS = [("sample",), ("analyte",), ("analyte", "metals"), ("interferents",), ("titrant",), ("search",),
-                 ("targets",), ("targets", "weights")]
+                 ("targets",), ("targets", "weights"), ("sample", "anions")]
 UNIT_PATHS = [("sample", "volume"), ("sample", "ionic_strength"), ("sample", "temperature"),
               ("titrant", "concentration"), ("titrant", "burette")]
 
@@ -187,6 +187,10 @@ def k_valid_variant(rng):
         doc["sample"]["ionic_strength"] = rng.choice(["0.1 M", "0.05 M", "10 mM", 0.2])
     if rng.random() < 0.5:
         doc["sample"]["temperature"] = rng.choice(["25 degC", "20 °C", "298.15 K", 30])
+    if rng.random() < 0.3:  # the sample's anions (README: names and units)
+        doc["sample"]["anions"] = dict(rng.sample([
+            ("alkalinity", rng.choice(["250 mg/L as CaCO3", "3 mmol/L"])), ("sulphate", "40 mg/L"),
+            ("phosphate", "0.5 mg/L as P"), ("chloride", "1 mmol/L")], rng.randint(1, 3)))
     doc["analyte"] = {"metals": {m: _conc(rng) for m in metals[:n_an]}}
     if rng.random() < 0.3:
         doc["analyte"]["metals"][metals[0]] = f"{rng.uniform(5, 200):.3g} " + rng.choice(["mg/L", "ppm"])

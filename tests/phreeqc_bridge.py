@@ -98,16 +98,17 @@ def database_text(system: ChemicalSystem, db, model: str) -> tuple[str, dict[str
         lines += [_reaction(system, row, names, product, charges), f"  log_k {corrected([k], 0.0, 25.0)[0]:.10f}",
                   (g_ion if z else g_neu).rstrip("\n")]
     lines += ["PHASES", "Fix_H+", "  H+ = H+", "  log_k 0"]
-    for name, row, k in zip(system.solids, system.nu_solid, system.solid_constants):
+    for j, (name, row, k) in enumerate(zip(system.solids, system.nu_solid, system.solid_constants)):
         metal = [c for c, v in zip(system.components, row) if v > 0 and c in db.metals][0]
-        pname = "P" + names[metal].lower() + str(abs(hash(name)) % 1000)
+        pname = "P" + names[metal].lower() + str(j)
         formula = _formula(system, row, names, 0)
-        # dissolution: solid + n H+ = M + n H2O (hydroxides) or solid = M + n L
+        # dissolution: solid [+ n H+] = m M + n L [+ h H+] [+ n H2O] (hydroxides and basic salts take up H+, acid
+        # salts such as MHPO4 release it)
         h = row[system.index(H)]
-        diss = [f"{names[metal]}{zstr(charges[metal])}"]
-        for c, v in zip(system.components, row):
-            if c != H and v and c != metal:
-                diss.append((f"{v} " if v != 1 else "") + names[c] + zstr(charges[c]))
+        diss = [(f"{v} " if v != 1 else "") + names[c] + zstr(charges[c])
+                for c, v in zip(system.components, row) if c != H and v]
+        if h > 0:
+            diss.append((f"{h} " if h != 1 else "") + "H+")
         lhs = formula + (f" + {-h} H+" if h < 0 else "")
         rhs = " + ".join(diss) + (f" + {-h} H2O" if h < 0 else "")
         lines += [pname, f"  {lhs} = {rhs}", f"  log_k {-corrected([k], 0.0, 25.0)[0]:.10f}"]

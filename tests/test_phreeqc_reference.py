@@ -24,6 +24,13 @@ CASES = [
     ("Cu-EDTA pH 4", ("Cu",), ("EDTA", "acetate"), {"Cu": 0.005, "EDTA": 0.004, "acetate": 0.1}, 4.5, False),
     ("Mg(OH)2 precipitate pH 11", ("Mg",), (), {"Mg": 0.01}, 11.0, True),
     ("Ca beside Mg(OH)2 pH 12.5", ("Ca", "Mg"), ("EDTA",), {"Ca": 0.002, "Mg": 0.002, "EDTA": 0.001}, 12.5, True),
+    # the sample's anions: carbonate and sulfate complexes, CaCO3 and the sulfate solids, the calcium phosphates
+    ("CaCO3 from a hard water's carbonate pH 10", ("Ca", "Mg"), ("EDTA", "carbonate", "sulfate"),
+     {"Ca": 0.002, "Mg": 0.001, "EDTA": 0.0005, "carbonate": 0.005, "sulfate": 0.001}, 10.0, True),
+    ("BaSO4 and PbSO4 pH 5", ("Ba", "Pb"), ("sulfate", "chloride", "acetate"),
+     {"Ba": 0.001, "Pb": 0.002, "sulfate": 0.005, "chloride": 0.01, "acetate": 0.05}, 5.0, True),
+    ("calcium phosphate pH 12.5", ("Ca",), ("phosphate", "carbonate"), {"Ca": 0.002, "phosphate": 0.001, "carbonate": 1e-4},
+     12.5, True),
 ]
 
 

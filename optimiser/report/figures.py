@@ -118,7 +118,7 @@ def titration_figure(analysis: Analysis) -> str:
     return _svg(fig)
 
 
-HATCHES = ["", "///", "...", "xx", "\\\\", "--", "oo"]
+HATCHES = ["", "///", "...", "xx", "\\\\", "--", "oo", "++"]
 
 
 def budget_figure(analysis: Analysis) -> str:
@@ -147,7 +147,7 @@ def speciation_figure(analysis: Analysis) -> str:
     fig, ax = plt.subplots(figsize=(6.4, 0.35 * len(rows) + 1.2))
     y = np.arange(len(rows))
     left = np.zeros(len(rows))
-    greys = ["#ffffff", "#1b4f72", "#a04000", "#196f3d", "#b7950b", "#7b7d7d", "#000000"]
+    greys = ["#ffffff", "#1b4f72", "#a04000", "#196f3d", "#b7950b", "#7b7d7d", "#000000", "#d5d8dc"]
     for k, cat in enumerate(analysis.categories):
         vals = np.array([r[1].get(cat, 0.0) for r in rows]) * 100
         ax.barh(y, vals, left=left, color=greys[k], edgecolor="black", hatch=HATCHES[k], label=cat, linewidth=0.5)
