@@ -17,6 +17,7 @@ from typing import Any
 
 import yaml
 
+from .comparison import ComparisonTable, comparison_table
 from .conditional import Conditions, conditional_constant, feasibility
 from .constants import database
 from .errors import MissingConstantError
@@ -27,6 +28,7 @@ from .readout import CATEGORIES, DROP_mL, budget_label
 from .reagents import HAZARD_NAMES, catalogue
 from .scenario import Scenario
 from .search import Evaluation, SearchResult
+from .search_stats import SearchStats
 from .strategies import strategy
 from .titration import Titration
 
@@ -165,6 +167,8 @@ class Analysis:
     mass_balance_error: float | None
     curve_points: int
     scenario_text: str
+    comparison: ComparisonTable | None = None  # the scenario's listed methods beside the recommendation
+    search_stats: SearchStats | None = None  # how the search went (None where the search did not count)
 
 
 def metal_order(scenario: Scenario) -> tuple[str, ...]:
@@ -447,6 +451,7 @@ def analyse(result: SearchResult) -> Analysis:
         constants=constants_table(t, sc.sample.temperature_C, sc), robustness_edges=robustness_edges(result),
         robust_pH=tuple(result.robust_pH) if result.robust_pH else None, robust_dose=dict(result.robust_dose),
         scenario_text=yaml.safe_dump(dict(sc.as_read), sort_keys=False, allow_unicode=True),
+        comparison=comparison_table(result), search_stats=getattr(result, "stats", None),
         **_titration_facts(sc, t))
 
 

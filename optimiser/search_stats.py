@@ -8,7 +8,7 @@ count its own.
 from __future__ import annotations
 
 from collections import Counter
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
@@ -58,12 +58,16 @@ def structure_of(e: Evaluation) -> tuple:
     return (c.titrant, c.indicator, c.buffer, tuple(sorted(a for a, _ in c.masking)), c.mode, c.strategy.variant(c))
 
 
-def from_evaluations(evaluations: Iterable[Evaluation], reasons: dict[str, str]) -> SearchStats:
+def from_evaluations(evaluations: Iterable[Evaluation], reasons: Mapping[str, str] | None = None) -> SearchStats:
     """Count a search from every distinct candidate it evaluated (a search that does not count its own).
 
     A structure counts as pruned where none of its candidates was simulated; its reason is the commonest quick-check
-    violation among them, worded by ``reasons`` (violation kind -> text, :data:`optimiser.objectives.VIOLATIONS`).
+    violation among them, worded by ``reasons`` (violation kind -> text; by default the short texts of
+    :data:`optimiser.objectives.VIOLATIONS`).
     """
+    if reasons is None:
+        from .objectives import VIOLATIONS
+        reasons = {kind: text for kind, (_, text) in VIOLATIONS.items()}
     by_structure: dict[tuple, list] = {}
     n_sim = n_pre = 0
     for e in evaluations:
