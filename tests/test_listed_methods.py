@@ -224,3 +224,16 @@ def test_a_candidate_whose_simulation_fails_counts_as_simulated(monkeypatch):
     assert s.structures_pruned == (("the indicator shows no colour change at that pH", 1),)
     from optimiser.decision import infeasible_note
     assert "among the 1 candidates simulated" in infeasible_note(list(ev.cache.values()))
+
+
+def test_the_command_line_names_the_listed_methods(capsys, scenarios_dir, tmp_path):
+    from optimiser.cli import main
+    path = str(scenarios_dir / "hardness_iron_aluminium.yaml")
+    assert main(["check", path]) == 0
+    assert "2 listed methods" in capsys.readouterr().out
+    assert main(["run", path, "--out", str(tmp_path), "--seed", "1"]) == 0
+    out = capsys.readouterr().out
+    assert "listed pH 10 EDTA with TEA: meets the criteria" in out
+    assert "listed pH 10 EDTA without masking: fails the criteria, dominated by the search's front" in out
+    doc = json.loads(next(tmp_path.glob("*.json")).read_text(encoding="utf-8"))
+    assert [d["name"] for d in doc["listed_methods"]] == ["pH 10 EDTA with TEA", "pH 10 EDTA without masking"]
