@@ -168,6 +168,7 @@ class Analysis:
     curve_points: int
     scenario_text: str
     comparison: ComparisonTable | None = None  # the scenario's listed methods beside the recommendation
+    listed_safety: tuple[SafetyItem, ...] = ()  # cautions for the listed methods' reagents the recommendation lacks
     search_stats: SearchStats | None = None  # how the search went (None where the search did not count)
 
 
@@ -355,6 +356,18 @@ def safety(method: Method | None) -> tuple[SafetyItem, ...]:
     return tuple(items)
 
 
+def listed_safety(result: SearchResult, shown: tuple[SafetyItem, ...]) -> tuple[SafetyItem, ...]:
+    """The cautions of the listed methods' reagents (and combinations) that ``shown`` does not already give."""
+    seen = {item.name for item in shown}
+    out = []
+    for o in getattr(result, "listed", ()):
+        for item in safety(o.evaluation.candidate.method(result.scenario)):
+            if item.name not in seen:
+                seen.add(item.name)
+                out.append(item)
+    return tuple(out)
+
+
 def _figure_constants(scenario: Scenario, t: Titration) -> list:
     """The constants the log K' figure and table rely on for every metal of the sample (its complexes with the
     titrant, its hydrolysis, its complexes with the method's ligands, the ligands' protonation), including metals
@@ -442,16 +455,18 @@ def analyse(result: SearchResult) -> Analysis:
     """Everything the report shows, computed once from the search result."""
     sc, e, t = result.scenario, result.recommended, result.recommended_titration
     has_method = e is not None and t is not None
+    cautions = safety(t.method if has_method else None)
     return Analysis(
         result=result, scenario=sc, meets_criteria=result.meets_criteria, budget=budget_rows(sc, t),
         standardised_error_percent=t.standardised_error_percent if t is not None else None, metals=metal_order(sc),
         method=bench_method(sc, t.method, t, e.margin) if has_method else None,
         criteria=criteria(sc, e, t) if has_method else (), log_K_table=log_K_table(result),
-        alternatives=alternatives(result), categories=CATEGORIES, safety=safety(t.method if has_method else None),
+        alternatives=alternatives(result), categories=CATEGORIES, safety=cautions,
         constants=constants_table(t, sc.sample.temperature_C, sc), robustness_edges=robustness_edges(result),
         robust_pH=tuple(result.robust_pH) if result.robust_pH else None, robust_dose=dict(result.robust_dose),
         scenario_text=yaml.safe_dump(dict(sc.as_read), sort_keys=False, allow_unicode=True),
-        comparison=comparison_table(result), search_stats=getattr(result, "stats", None),
+        comparison=comparison_table(result), listed_safety=listed_safety(result, cautions),
+        search_stats=getattr(result, "stats", None),
         **_titration_facts(sc, t))
 
 

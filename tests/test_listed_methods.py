@@ -237,3 +237,29 @@ def test_the_command_line_names_the_listed_methods(capsys, scenarios_dir, tmp_pa
     assert "listed pH 10 EDTA without masking: fails the criteria, dominated by the search's front" in out
     doc = json.loads(next(tmp_path.glob("*.json")).read_text(encoding="utf-8"))
     assert [d["name"] for d in doc["listed_methods"]] == ["pH 10 EDTA with TEA", "pH 10 EDTA without masking"]
+
+
+def test_a_listed_method_with_cyanide_gets_its_cautions_even_where_nothing_is_recommended(tmp_path):
+    """Hazardous reagents of a listed method carry their cautions and the deferral to the safety data sheet, local
+    regulations and the safety officer, whether or not the search recommends anything (here nothing: a 0.5 M sample
+    and a 25 mL burette of 0.01 M titrant)."""
+    sc = parse("""
+name: too-concentrated
+sample: {volume: 50 mL}
+analyte: {metals: {Ca: 0.5 mol/L}}
+interferents: {Cu: 0.1 mmol/L}
+titrant: {concentration: 0.01 M, burette: 25 mL}
+methods:
+  - {name: with cyanide, pH: 10, titrant: EDTA, buffer: ammonia, indicator: EBT, masking: {KCN: 1 mM}}
+""", "x.yaml")
+    r = run_search(sc, seed=1, pop_size=20, n_gen=5, with_robustness=False)
+    assert r.recommended is None
+    o, = r.listed
+    assert not o.meets_criteria and any("burette" in v for v in o.evaluation.violations)
+    analysis = analyse(r)
+    assert [c.name for c in analysis.comparison.columns] == ["with cyanide"]  # no recommendation column
+    assert "cyanide (as KCN)" in [item.name for item in analysis.listed_safety]
+    page, _ = report.write(r, tmp_path, dumps(to_json(r)), analysis=analysis)
+    html = page.read_text(encoding="utf-8")
+    listed = html[html.index('id="listed-methods"'):html.index("</section>", html.index('id="listed-methods"'))]
+    assert "extremely toxic" in listed and "safety officer" in listed and "safety data sheet" in listed
