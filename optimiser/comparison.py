@@ -107,7 +107,7 @@ def compare(scenario: Scenario, front: Sequence[Evaluation], recommended: Evalua
     fine = evaluator.evaluate_all(candidates, n_points=FINE_POINTS)
     feasible_front = [e for e in front if e.feasible]
     out = []
-    for m, ec, ef in zip(listed, coarse, fine):
+    for m, ec, ef in zip(listed, coarse, fine, strict=True):
         pH_w, doses = None, {}
         if with_robustness and ef.titration is not None and ef.titration.endpoint_mL is not None:
             pH_w, doses, _, _ = robustness(scenario, ef)

@@ -139,9 +139,10 @@ def _masking(r, entry: Mapping, key: tuple) -> tuple[tuple[str, float], ...]:
     if block is None:
         return ()
     if not isinstance(block, Mapping):
-        raise r.error("masking must be a mapping of masking agent: concentration, e.g. {TEA: 30 mM}", key + ("masking",))
+        raise r.error(f"methods.{key[-1]}.masking must be a mapping of masking agent: concentration, e.g. {{TEA: 30 mM}}",
+                      key + ("masking",))
     cat, out = catalogue(), []
-    for a, dose in block.items():
+    for a in block:
         try:
             agent = cat.masking_agent(str(a))
         except InputError as exc:

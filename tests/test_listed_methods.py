@@ -156,7 +156,7 @@ def test_a_listed_standard_method_is_evaluated_beside_the_recommendation(hardnes
 
 def test_a_listed_method_is_judged_as_the_search_judges_a_candidate(hardness):
     """The listed method's objectives and constraints are those the search's evaluator gives the same candidate."""
-    sc, r = hardness
+    sc, _ = hardness
     c = sc.methods[0].candidate()
     searched, = Evaluator(sc).evaluate([c])
     listed, = Evaluator(sc).evaluate_all([c])
@@ -199,8 +199,9 @@ def test_the_search_counts_its_structures_and_candidates(hardness):
 
 def test_a_candidate_whose_simulation_fails_counts_as_simulated(monkeypatch):
     """The "N candidates simulated" note and the counts include candidates that hit a missing constant."""
-    import optimiser.evaluation as evaluation
     from conftest import TINY_SCENARIO
+
+    from optimiser import evaluation
     from optimiser.candidate import Candidate
 
     sc = parse(TINY_SCENARIO, "tiny.yaml")
