@@ -102,7 +102,8 @@ class Evaluator:
         pre = [ob.prescreen(self.scenario, c, buffers_for) for c in candidates]
         sims, errors = self._simulate(candidates, n_points)
         failed = {k: (_error_kind(e), str(e)) for k, e in errors}
-        return [self.score(c, t, pre[k] + ([failed[k]] if k in failed else [])) for k, (c, t) in enumerate(zip(candidates, sims, strict=True))]
+        return [self.score(c, t, pre[k] + ([failed[k]] if k in failed else []))
+                for k, (c, t) in enumerate(zip(candidates, sims, strict=True))]
 
     def _simulate(self, to_sim: Sequence[Candidate], n_points: int | None = None) -> tuple[list[Titration | None], list]:
         n_points = n_points or self.n_points
