@@ -17,6 +17,7 @@ from typing import Any
 
 import yaml
 
+from .comparison import ComparisonTable, comparison_table
 from .conditional import Conditions, conditional_constant, feasibility
 from .constants import database
 from .errors import MissingConstantError
@@ -27,6 +28,7 @@ from .readout import CATEGORIES, DROP_mL, budget_label
 from .reagents import HAZARD_NAMES, catalogue
 from .scenario import Scenario
 from .search import Evaluation, SearchResult
+from .search_stats import SearchStats
 from .strategies import strategy
 from .titration import Titration
 
@@ -168,6 +170,9 @@ class Analysis:
     mass_balance_error: float | None
     curve_points: int
     scenario_text: str
+    comparison: ComparisonTable | None = None  # the scenario's listed methods beside the recommendation
+    listed_safety: tuple[SafetyItem, ...] = ()  # cautions for the listed methods' reagents the recommendation lacks
+    search_stats: SearchStats | None = None  # how the search went (None where the search did not count)
 
 
 def metal_order(scenario: Scenario) -> tuple[str, ...]:
@@ -356,6 +361,18 @@ def safety(method: Method | None) -> tuple[SafetyItem, ...]:
     return tuple(items)
 
 
+def listed_safety(result: SearchResult, shown: tuple[SafetyItem, ...]) -> tuple[SafetyItem, ...]:
+    """The cautions of the listed methods' reagents (and combinations) that ``shown`` does not already give."""
+    seen = {item.name for item in shown}
+    out = []
+    for o in getattr(result, "listed", ()):
+        for item in safety(o.evaluation.candidate.method(result.scenario)):
+            if item.name not in seen:
+                seen.add(item.name)
+                out.append(item)
+    return tuple(out)
+
+
 def _figure_constants(scenario: Scenario, t: Titration) -> list:
     """The constants the log K' figure and table rely on for every metal of the sample (its complexes with the
     titrant, its hydrolysis, its complexes with the method's ligands, the ligands' protonation), including metals
@@ -443,15 +460,19 @@ def analyse(result: SearchResult) -> Analysis:
     """Everything the report shows, computed once from the search result."""
     sc, e, t = result.scenario, result.recommended, result.recommended_titration
     has_method = e is not None and t is not None
+    cautions = safety(t.method if has_method else None)
     return Analysis(
         result=result, scenario=sc, meets_criteria=result.meets_criteria, budget=budget_rows(sc, t),
         standardised_error_percent=t.standardised_error_percent if t is not None else None, metals=metal_order(sc),
         method=bench_method(sc, t.method, t, e.margin) if has_method else None,
         criteria=criteria(sc, e, t) if has_method else (), log_K_table=log_K_table(result),
-        alternatives=alternatives(result), categories=CATEGORIES, safety=safety(t.method if has_method else None),
-        constants=constants_table(t, t.sample.temperature_C if t is not None else sc.sample.temperature_C, sc), robustness_edges=robustness_edges(result),
+        alternatives=alternatives(result), categories=CATEGORIES, safety=cautions,
+        constants=constants_table(t, t.sample.temperature_C if t is not None else sc.sample.temperature_C, sc),
+        robustness_edges=robustness_edges(result),
         robust_pH=tuple(result.robust_pH) if result.robust_pH else None, robust_dose=dict(result.robust_dose),
         scenario_text=yaml.safe_dump(dict(sc.as_read), sort_keys=False, allow_unicode=True),
+        comparison=comparison_table(result), listed_safety=listed_safety(result, cautions),
+        search_stats=getattr(result, "stats", None),
         **_titration_facts(sc, t))
 
 

@@ -426,9 +426,26 @@ def _cmd_run(a) -> int:
               f"robust pH {result.robust_pH[0]:.2f}-{result.robust_pH[1]:.2f}" if result.robust_pH else
               f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {t.standardised_error_percent:+.2f} %")
         print("\n".join(_budget_lines(t)))
+    print("\n".join(_listed_lines(result)))
     print(f"  report: {printable(str(report_path))}")
     print(f"  data:   {printable(str(json_path))}")
     return 0 if result.meets_criteria else 1
+
+
+def _listed_lines(result) -> list[str]:
+    """One line per method the scenario lists: whether it meets the criteria and is dominated, its error and
+    sharpness."""
+    lines = []
+    for o in getattr(result, "listed", ()):
+        e = o.evaluation
+        verdict = "meets the criteria" if o.meets_criteria else "fails the criteria"
+        dominated = "dominated by the search's front" if o.dominated else "not dominated by the search's front"
+        figures = (f"error after standardisation {e.standardised_error_percent:+.2f} %"
+                   if e.standardised_error_percent is not None else "no end point")
+        if e.sharpness_mL is not None:
+            figures += f", sharpness {e.sharpness_mL:.3f} mL"
+        lines.append(f"  listed {printable(o.listed.name, 80)}: {verdict}, {dominated}; {figures}")
+    return lines
 
 
 def _budget_lines(t) -> list[str]:
@@ -456,8 +473,9 @@ def _cmd_check(a) -> int:
             bad += 1
             print(f"{PROG}: error: {printable(str(exc))}", file=sys.stderr)
             continue
+        listed = f"; {len(sc.methods)} listed method{'s' if len(sc.methods) > 1 else ''}" if sc.methods else ""
         print(f"{printable(p)}: ok ({printable(sc.name)}; analyte {printable(sc.analyte_label)}; "
-              f"{len(sc.sample.interferents)} interferents)")
+              f"{len(sc.sample.interferents)} interferents{listed})")
     return 2 if bad else 0
 
 

@@ -151,7 +151,7 @@ def compromise_note(scenario: Scenario, e: Evaluation) -> str | None:
 def infeasible_note(evals: Sequence[Evaluation]) -> str:
     """Why no feasible method was found: the commonest violations among the candidates simulated."""
     counts: dict[str, int] = {}
-    simulated = [e for e in evals if e.titration is not None] or list(evals)  # past the quick checks first
+    simulated = [e for e in evals if e.simulated] or list(evals)  # past the quick checks (a failed simulation too)
     for e in simulated:
         for kind in dict.fromkeys(e.kinds):
             counts[VIOLATIONS[kind][1]] = counts.get(VIOLATIONS[kind][1], 0) + 1

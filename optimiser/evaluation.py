@@ -12,6 +12,7 @@ from .titration import Titration, simulate_many
 
 SEARCH_POINTS = 41  # coarse curve points per candidate during the search (the recommendation is re-run finer)
 SIMULATION = {"standardise": True, "pH_drift": True}  # what every candidate's criteria need
+SIMULATION_FAILURES = ("missing_constant", "inapplicable", "not_converged")  # violations a simulation itself raises
 
 
 @dataclass(frozen=True)
@@ -32,6 +33,11 @@ class Evaluation:
     @property
     def feasible(self) -> bool:
         return all(g <= 0 for g in self.G)
+
+    @property
+    def simulated(self) -> bool:
+        """True where the candidate went to the simulation (whether or not the simulation succeeded)."""
+        return self.titration is not None or any(k in SIMULATION_FAILURES for k in self.kinds)
 
     @property
     def standardised_error_percent(self) -> float | None:
@@ -88,20 +94,32 @@ class Evaluator:
             self.cache[c.key()] = self.score(c, None, v)
         return [self.cache[c.key()] for c in candidates]
 
-    def _simulate(self, to_sim: Sequence[Candidate]) -> tuple[list[Titration | None], list]:
+    def evaluate_all(self, candidates: Sequence[Candidate], n_points: int | None = None) -> list[Evaluation]:
+        """Every candidate simulated, even one the quick checks reject (their violations are kept), on a curve of
+        ``n_points`` (the evaluator's own by default); neither cached nor counted as the search's. For the methods a
+        scenario lists, whose figures are shown whatever they are."""
+        candidates = list(candidates)
+        pre = [ob.prescreen(self.scenario, c, buffers_for) for c in candidates]
+        sims, errors = self._simulate(candidates, n_points)
+        failed = {k: (_error_kind(e), str(e)) for k, e in errors}
+        return [self.score(c, t, pre[k] + ([failed[k]] if k in failed else []))
+                for k, (c, t) in enumerate(zip(candidates, sims, strict=True))]
+
+    def _simulate(self, to_sim: Sequence[Candidate], n_points: int | None = None) -> tuple[list[Titration | None], list]:
+        n_points = n_points or self.n_points
         errors: list = []
         methods = [c.method(self.scenario) for c in to_sim]
         if not methods:
             return [], errors
         try:
-            return simulate_many(self.scenario.sample, methods, n_points=self.n_points, errors=errors, **SIMULATION), errors
+            return simulate_many(self.scenario.sample, methods, n_points=n_points, errors=errors, **SIMULATION), errors
         except ConvergenceError:
             # rare: retry one by one so that only the offending candidate is lost
             sims, errors = [], []
             for k, m in enumerate(methods):
                 local: list = []
                 try:
-                    sims.append(simulate_many(self.scenario.sample, [m], n_points=self.n_points, errors=local, **SIMULATION)[0])
+                    sims.append(simulate_many(self.scenario.sample, [m], n_points=n_points, errors=local, **SIMULATION)[0])
                 except ConvergenceError as exc:
                     sims.append(None)
                     local = [(0, exc)]

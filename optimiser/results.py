@@ -19,6 +19,7 @@ from typing import Any
 import numpy as np
 
 from .errors import InputError, printable
+from .objectives import complexity_of
 from .reagents import HAZARD_NAMES
 from .search import Evaluation, SearchResult, strategy_of
 from .strategies import strategy
@@ -58,6 +59,20 @@ def _method_json(result: SearchResult, e: Evaluation) -> dict[str, Any]:
     }
 
 
+def _listed_json(result: SearchResult) -> list[dict[str, Any]]:
+    """The scenario's listed methods, each shaped like "recommended" plus how it stands against the search."""
+    out = []
+    for o in getattr(result, "listed", ()):
+        e = o.evaluation
+        out.append({"name": o.listed.name, "source": o.listed.source, **_method_json(result, e),
+                    "buffer_total_M": _r(o.listed.buffer_total_M, 6), "complexity": _r(complexity_of(e.candidate), 2),
+                    "meets_criteria": o.meets_criteria, "dominated": o.dominated, "dominated_by": o.dominated_by,
+                    "dominated_by_recommendation": o.dominated_by_recommendation,
+                    "robust_pH": [_r(x, 3) for x in o.robust_pH] if o.robust_pH else None,
+                    "robust_dose_M": {k: [_r(v[0], 6), _r(v[1], 6)] for k, v in o.robust_dose.items()}})
+    return out
+
+
 def to_json(result: SearchResult) -> dict[str, Any]:
     """The JSON document of a run (stable keys; documented in the README)."""
     sc = result.scenario
@@ -89,6 +104,8 @@ def to_json(result: SearchResult) -> dict[str, Any]:
                                   "pH": [float(x) for x in cc["pH"]],
                                   **{m: [_r(v, 3) for v in cc[m]] for m in sc.sample.metals}},
         "notes": list(result.notes),
+        "listed_methods": _listed_json(result),
+        "search": stats.as_dict() if (stats := getattr(result, "stats", None)) is not None else None,
     }
 
 

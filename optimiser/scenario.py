@@ -14,7 +14,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
-from . import yaml_reader
+from . import listed_methods, yaml_reader
 from .anions import anion_totals
 from .anions import resolve as anion_input
 from .constants import IONIC_STRENGTH_MAX_M, TEMPERATURE_RANGE_C, database
@@ -48,6 +48,7 @@ _SCHEMA: dict[str, Any] = {
     "search": {"pH": list, "titrants": list, "buffers": list, "masking": list, "indicators": list, "forbid": list,
                "max_masking_agents": int, "max_hazard": None, "modes": list, "back_metals": list},
     "targets": {"max_error_percent": None, "weights": dict},
+    "methods": list,  # methods to evaluate beside the search's answer (optimiser.listed_methods)
 }
 
 
@@ -113,6 +114,7 @@ class Scenario:
     targets: Targets
     source: str
     as_read: Mapping[str, Any] = field(default_factory=dict, compare=False, repr=False)
+    methods: tuple[listed_methods.ListedMethod, ...] = ()  # listed for comparison with the search's answer
 
     @property
     def objectives(self) -> tuple[str, ...]:
@@ -502,7 +504,7 @@ def _targets(r: _Reader) -> Targets:
 def parse(text: str, path: str = "<scenario>") -> Scenario:
     """Validate a scenario document and return a :class:`Scenario`.
 
-    The sections are read in order (name, sample, analyte and interferents, titrant, search, targets); the
+    The sections are read in order (name, sample, analyte and interferents, titrant, search, targets, methods); the
     first error found is raised.
 
     Raises
@@ -521,6 +523,7 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
     search = _search(r)
     targets = _targets(r)
     anions, anion_notes = _anions(r)
+    methods = listed_methods.read(r, cT)
     try:
         sample = Sample(volume_mL=V0, metals=metals, analyte=tuple(analyte), ionic_strength_M=I, temperature_C=T,
                         acid_M=_acid(r), anions=anions, anion_notes=anion_notes)
@@ -528,7 +531,7 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
         raise r.error(str(exc), ("analyte",)) from None
     return Scenario(name=name, description=description, sample=sample, analyte_label=label, report_as=report_as,
                     titrant_conc_M=cT, burette_mL=burette, matrix=matrix, search=search, targets=targets, source=path,
-                    as_read=doc)
+                    as_read=doc, methods=methods)
 
 
 def load(path: str | Path) -> Scenario:

@@ -22,8 +22,9 @@ from pymoo.core.problem import Problem
 from pymoo.core.variable import Choice, Real
 from pymoo.optimize import minimize
 
-from . import decision
+from . import decision, search_stats
 from .candidate import Candidate, buffers_for
+from .comparison import ListedOutcome, compare
 from .decision import strategy_of
 from .evaluation import Evaluation, Evaluator
 from .objectives import CONSTRAINTS, conditional_curves
@@ -74,6 +75,8 @@ class SearchResult:
     conditional: dict[str, np.ndarray]
     notes: tuple[str, ...] = ()
     history: tuple[np.ndarray, ...] = field(default=(), repr=False)
+    listed: tuple[ListedOutcome, ...] = ()  # the scenario's listed methods beside the answer (optimiser.comparison)
+    stats: search_stats.SearchStats | None = None  # how the search went
 
 
 class MethodProblem(Problem):
@@ -162,8 +165,11 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 40, n_gen: int
             notes.append(note)
     alts = tuple(Alternative(e, strategy_of(e)) for e in front)
     curves = conditional_curves(scenario, chosen.candidate if chosen else None, CC_PH)
+    stats = search_stats.from_evaluations(evaluator.cache.values())
+    listed = compare(scenario, [a.evaluation for a in alts], chosen, with_robustness)
     return SearchResult(scenario=scenario, seed=seed, evaluations=evaluator.n_evaluations,
                         generations=res.algorithm.n_gen, wall_time_s=time.perf_counter() - t0,
                         objectives=scenario.objectives, front=alts, recommended=chosen, recommended_titration=rec_t,
                         rule=rule, meets_criteria=decision.meets_criteria(scenario, chosen), robust_pH=pH_w, robust_dose=doses, robustness_pH_scan=scan_pH,
-                        robustness_dose_scan=scan_dose, conditional=curves, notes=tuple(notes), history=tuple(history))
+                        robustness_dose_scan=scan_dose, conditional=curves, notes=tuple(notes), history=tuple(history),
+                        listed=listed, stats=stats)
