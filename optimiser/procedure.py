@@ -7,7 +7,6 @@ reagent's data entry declares (the buffer's solutions and salts). No mode or rea
 from __future__ import annotations
 
 import math
-import re
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -212,12 +211,6 @@ def strategy_text(method: Method) -> str:
     """'direct titration', 'back-titration with Zn': the strategy's label, with its standard where it needs one."""
     s = method.strategy
     return f"{s.label} with {s.variant(method)}" if s.uses_standard else s.label
-
-
-def _excess_first(method: Method, t: Titration) -> bool:
-    """A slow analyte reacts with the excess in the still acidic sample, before it is buffered (and its hydroxide
-    can form), on heating (common practice)."""
-    return method.strategy.uses_standard and t.excess_mL is not None and bool(t.slow_analytes)
 
 
 @dataclass(frozen=True)

@@ -372,7 +372,7 @@ class SafetyContradiction:
             try:
                 re.compile(pattern)
             except re.error as exc:
-                raise DataError(f"safety contradiction {self.name!r}: {pattern!r} is not a regular expression ({exc})")
+                raise DataError(f"safety contradiction {self.name!r}: {pattern!r} is not a regular expression ({exc})") from None
 
     def found_in(self, cautions: Iterable[str]) -> tuple[str, str] | None:
         """The first caution matching ``first`` and the first matching ``second``, where both are there."""
