@@ -84,13 +84,14 @@ def is_weighable_mass(mass_mg: float, figures: int = 3) -> bool:
     return mass_mg >= BALANCE_MIN_mg - 1e-9 and sig(mass_mg, figures) == mass_mg
 
 
-_AMOUNT = re.compile(r"(?<![\w.])(\d+(?:\.\d+)?)(?:\s*-\s*(\d+(?:\.\d+)?))?\s*(mL|uL|µL|L|mg|g|kg)\b")
+_AMOUNT = re.compile(r"(?<![\w.])(\d+(?:\.\d+)?)(?:\s*-\s*(\d+(?:\.\d+)?))?\s*(mL|uL|µL|L|mg|g|kg)\b(?!/)")  # not a unit of a ratio (g/mol, g/mL)
 
 
 def amounts(text: str) -> list[tuple[float, str]]:
-    """Every volume and mass written in ``text``, as (value, unit); a range "1-2 mL" gives both ends.
+    """Every volume and mass written in ``text``, as (value, unit); a range "1-2 mL" gives both ends; a ratio's unit
+    (100.09 g/mol, 1.124 g/mL) is no amount.
 
-    >>> amounts("Add 1.1 mL of the stock and 0.20 g of the mixture; 1-2 mL per 50 mL")
+    >>> amounts("Add 1.1 mL of the stock (1.124 g/mL) and 0.20 g of the mixture; 1-2 mL per 50 mL")
     [(1.1, 'mL'), (0.2, 'g'), (1.0, 'mL'), (2.0, 'mL'), (50.0, 'mL')]
     """
     out = []

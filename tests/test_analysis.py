@@ -6,6 +6,8 @@ from pathlib import Path
 
 import pytest
 
+from optimiser.quantities import pipette_mL
+
 from conftest import AL_BACK
 
 from optimiser import report
@@ -84,8 +86,9 @@ def test_back_titration_words_and_titre(al):
     assert any(row.mode == "back (Zn)" for row in a.alternatives)
     titre = next(c for c in a.criteria if c.name == "Titre within the burette")
     assert titre.value == f"{report.fmt(max(t.endpoint_mL, t.excess_mL), 4)} mL" and titre.met
-    assert a.method.procedure[0].startswith("Standardise the titrant first")
-    assert a.method.procedure[2].startswith(f"Add {t.excess_mL:.2f} mL of 0.02 M EDTA (an excess)")
+    assert a.method.standardisation[0].startswith("Primary standard: dissolve about")
+    assert a.method.procedure[2].startswith(f"Pipette {pipette_mL(t.excess_mL, at_least=True):g} mL of EDTA 0.02 mol/L "
+                                            "(an excess)")
 
 
 def test_log_K_table_holds_the_method_pH(bi):
