@@ -139,8 +139,8 @@ def test_a_second_format_is_one_function(bi, tmp_path, monkeypatch):
 
 def test_unknown_format_lists_the_known_ones(bi, tmp_path):
     from optimiser.errors import UnknownNameError
-    with pytest.raises(UnknownNameError, match="known report formats: html"):
-        report.write(bi[0], tmp_path, "{}\n", report_format="pdf")
+    with pytest.raises(UnknownNameError, match="known report formats: html, md, pdf"):
+        report.write(bi[0], tmp_path, "{}\n", report_format="docx")
 
 
 def test_the_constants_table_holds_what_the_figures_use():
