@@ -13,15 +13,17 @@ from dataclasses import dataclass
 
 from .conditional import Conditions, ligand_fractions
 from .method import Method
-from .quantities import graduated_mL, number, pipette_mL, sig
-from .reagents import catalogue, molar_mass
+from .quantities import device, graduated_mL, number, pipette_mL, sig
+from .reagents import catalogue
 from .scenario import Scenario
 from .stocks import (Addition, Stock, StockSolution, buffer_per_litre, grams, graduated_addition, millilitres,
                      neutraliser, per_litre, stock)
 from .titration import Titration
+from .units import molar_mass_of_metal
 
 CHECK_TEMPERATURE_C = 2.0  # the sample, standard and blank titrated within +/- 2 degC of each other (common practice)
 DUPLICATE_FACTOR = 1.0  # duplicates agree within the error target (common practice)
+MIN_WEIGHED_g = 0.02  # each substance of a primary standard at least 20 mg per litre (0.5 % at 0.1 mg; common practice)
 
 
 @dataclass(frozen=True)
@@ -38,7 +40,8 @@ class WrittenMethod:
 
 
 def _missing(role: str, reagent: str) -> StockSolution:
-    return StockSolution(role, reagent, "no stock solution in the data: prepare as the supplier directs", "-", (), "common_practice")
+    return StockSolution(role, reagent, "no stock solution in the data: prepare as the supplier directs", "-", (),
+                         "common_practice")
 
 
 def _stock_row(role: str, st: Stock | None, name: str, per_litre_text: str) -> StockSolution:
@@ -91,9 +94,11 @@ class _Writer:
             label = f"{st.name or buf.name} {c:g} mol/L"
             if kind == STRONG_BASE:
                 from .procedure import hydroxide_in_solids_mmol
-                mmol = self.V0 * free_hydroxide_M(self.m.pH, s.ionic_strength_M, s.temperature_C) + hydroxide_in_solids_mmol(self.t)
+                mmol = (self.V0 * free_hydroxide_M(self.m.pH, s.ionic_strength_M, s.temperature_C)
+                        + hydroxide_in_solids_mmol(self.t))
             elif kind == STRONG_ACID:
-                mmol = max(self.V0 * free_hydrogen_M(self.m.pH, s.ionic_strength_M, s.temperature_C) - s.acid_M * self.V0, 0.0)
+                free_H = self.V0 * free_hydrogen_M(self.m.pH, s.ionic_strength_M, s.temperature_C)
+                mmol = max(free_H - s.acid_M * self.V0, 0.0)  # the sample's own acid counts towards it
             else:
                 mmol = 0.0
             v = graduated_mL(mmol / c) if mmol > 0 else 0.0
@@ -103,7 +108,7 @@ class _Writer:
             return f"The sample's own acid sets the pH: {adjust}."
         self.adds.append(Addition(label, v, None, f"{millilitres(v)} of {label}"))
         timing = f" {st.timing}" if st.timing else ""
-        return f"Add {millilitres(v)} of the {label} ({'graduated pipette' if v <= 10 else 'measuring cylinder'}){held}; {adjust}.{timing}"
+        return f"Add {millilitres(v)} of the {label} ({device(v)}){held}; {adjust}.{timing}"
 
     def masking_steps(self) -> list[str]:
         out = []
@@ -148,41 +153,57 @@ class _Writer:
                 "full capacity (common practice).")
 
     # -- standardisation --------------------------------------------------------------------------------------
-    def standardisation(self, titrant: str) -> list[str]:
+    def primary_standard(self) -> tuple[float, float, list[tuple[str, float]]]:
+        """The primary standard solution: (its total molarity [mol/L], the volume pipetted [mL], and (what, grams)
+        weighed per litre for each analyte). It holds the analytes in the sample's proportions, at the level that
+        puts the sample's amount into a volumetric pipette's volume (the aliquot's own where every mass is
+        weighable), so that its titre is the sample's, as the simulated standardisation assumes."""
         s = self.sc.sample
         prims = catalogue().primary_standards
         total = sum(s.metals[a] for a in s.analyte)
-        c_std = self.cT  # the standard is made at the titrant's molarity (common practice)
-        weighed, names = [], []
-        for a in s.analyte:
-            share = s.metals[a] / total
+        for k in (1, 2, 5, 10, 25, 50):
+            V_std = pipette_mL(self.V0 / k)
+            c_std = total * self.V0 / V_std
+            masses = [(a, c_std * s.metals[a] / total * (prims[a].molar_mass if a in prims else molar_mass_of_metal(a)))
+                      for a in s.analyte]
+            if min(g for _, g in masses) >= MIN_WEIGHED_g:
+                break
+        return c_std, V_std, masses
+
+    def standardisation(self, titrant: str) -> list[str]:
+        s = self.sc.sample
+        prims = catalogue().primary_standards
+        c_std, V_std, masses = self.primary_standard()
+        weighed, hazards = [], []
+        for a, g in masses:
             p = prims.get(a)
             if p is None:
-                weighed.append(f"a certified {a} standard solution giving {number(c_std * share * 1000, 2)} mmol/L")
+                share = s.metals[a] / sum(s.metals[x] for x in s.analyte)
+                weighed.append(f"a certified {a} standard solution, {number(c_std * share * 1000, 2)} mmol/L")
                 continue
-            g = c_std * share * molar_mass(p.formula)
             weighed.append(f"about {grams(g, 3)} {p.substance} ({p.formula}), weighed to 0.1 mg and {p.preparation}")
-            names.append(p.substance.split(",")[0])
-        label = "primary standard solution, " + f"{c_std:g} mol/L"
+            hazards += [h for h in p.hazards if h not in hazards]
+        label = f"primary standard solution ({', '.join(s.analyte)}), {number(c_std * 1000, 3)} mmol/L"
+        source = prims[s.analyte[0]].source if s.analyte[0] in prims else "common_practice"
         self.rows.append(StockSolution("primary standard", label, "per litre: " + "; ".join(weighed)
-                                       + ", made up to 1 L in a volumetric flask", "a year, closed",
-                                       (), prims[s.analyte[0]].source if s.analyte[0] in prims else "common_practice"))
-        V_std = pipette_mL(min(s.n_analyte_mmol / c_std, self.sc.burette_mL * 0.8))
+                                       + ", made up to 1 L in a volumetric flask", "a year, closed", tuple(hazards), source))
         self.adds.append(Addition("primary standard", V_std, None, f"{V_std:g} mL of the primary standard"))
         steps = [
             f"Primary standard: dissolve {'; and '.join(weighed)}; make up to 1 L in a volumetric flask. Its "
             "concentration follows from the masses weighed: c(standard) = sum of m / (M x 1 L) [mol/L].",
-            f"Pipette {V_std:g} mL of the primary standard into a titration flask, add deionised water to about "
-            f"{self.V0:g} mL and carry it through the procedure below (every step, same reagents, same "
-            f"indicator and dose, at the same temperature); titrate it in duplicate.",
-            f"c(titrant) [mol/L] = c(standard) [mol/L] x {V_std:g} mL / (V1 - Vb) [mL], with V1 the mean titre "
-            "of the standard and Vb the reagent blank's (common practice).",
+            f"Pipette {V_std:g} mL of the primary standard into a titration flask"
+            + (f", add deionised water to about {self.V0:g} mL" if V_std < self.V0 else "")
+            + " and carry it through the procedure below (every step, the same reagents, the same indicator and dose, "
+            "at the same temperature); titrate it in duplicate.",
         ]
         if self.m.strategy.uses_standard:
             std = self.m.strategy.variant(self.m)
-            steps.append(f"Set the {std} standard against the titrant the same day: pipette 10 mL of the {titrant}, add "
-                         f"the buffer and indicator as in the procedure and titrate with the {std} standard to the same "
-                         f"colour; c({std}) = c(titrant) x 10 mL / V({std}) [mol/L].")
+            steps.append(f"c({std}) [mol/L] = c(standard) [mol/L] x {V_std:g} mL / (Vb - V1) [mL], with V1 the mean "
+                         f"back-titre of the standard and Vb the reagent blank's (the blank holds the same pipetted "
+                         f"excess of {titrant}, so the titrant's own concentration cancels; common practice).")
+        else:
+            steps.append(f"c(titrant) [mol/L] = c(standard) [mol/L] x {V_std:g} mL / (V1 - Vb) [mL], with V1 the mean "
+                         "titre of the standard and Vb the reagent blank's (common practice).")
         if self.t.standardisation is not None and self.t.standardisation.error_percent is not None:
             steps.append(f"The standardisation cancels what the analyte alone shows by this method (predicted "
                          f"{self.t.standardisation.error_percent:+.2f} %).")
@@ -261,14 +282,14 @@ def _calculation(scenario: Scenario, method: Method, V_x: float | None, formula:
     if method.strategy.uses_standard:
         std = method.strategy.variant(method)
         lines = [f"n({label}) [mmol] = c({std}) [mol/L] x (Vb - V) [mL], with Vb the reagent blank's back-titre (it holds "
-                 f"the whole {V_x or 0:g} mL excess) and V the sample's (common practice)",
+                 f"the whole {V_x or 0:g} mL excess), V the sample's and c({std}) as standardised (common practice)",
                  f"c({label}) [mmol/L] = n [mmol] / {V0} mL x 1000"]
     else:
         lines = [f"c({label}) [mmol/L] = c(titrant) [mol/L] x (V - Vb) [mL] / {V0} mL x 1000, with V the sample's "
                  "titre and Vb the reagent blank's"]
-    mass = formula.split("; ", 1)[1] if "; " in formula else None
+    mass = next((part for part in formula.split("; ")[1:] if "mg/L" in part), None)
     if mass:
-        lines.append(mass.replace("mg/L", "[mg/L]") + " g/mol")
+        lines.append(mass + " g/mol")
     lines.append("Report the mean of the duplicates to three significant figures, with the titrant's concentration "
                  "and the date of its standardisation.")
     return tuple(lines)

@@ -317,7 +317,7 @@ SCHEMAS: dict[tuple[str, str | None], Schema] = {
         "id": Key(str), "name": Key(str), "salt": Key(str), "formula": Key(str), "hazard": _HAZARD, "cautions": _TEXTS},
     ("reagents.yaml", "primary_standards"): {
         "id": Key(str), "substance": Key(str), "formula": Key(str), "preparation": Key(str),
-        "source": Key(str, reference=True)},
+        "source": Key(str, reference=True), "hazards": optional(list, [], items=Key(str))},
     ("reagents.yaml", "safety_rules"): {
         "name": Key(str), "when_all": Key(list, items=Key(str)), "unless_any": optional(list, [], items=Key(str)),
         "hazard": _HAZARD, "cautions": _TEXTS},

@@ -110,8 +110,8 @@ def method_document(scenario: Scenario, t: Titration, m: BenchMethod, meets_crit
                             items=_interferences(scenario, t) + tuple(m.warnings))
     header = ("Stock solution", "Role", "Recipe", "Keeps", "Hazards")
     rows = tuple((s.name, s.role, s.per_litre, s.shelf_life, ", ".join(s.hazards) or "-") for s in m.stocks)
-    reagents = Section("reagents", "Reagents (stock solutions)", ("Deionised water throughout; reagents of analytical grade.",),
-                       table=(header, *rows))
+    reagents = Section("reagents", "Reagents (stock solutions)",
+                       ("Deionised water throughout; reagents of analytical grade.",), table=(header, *rows))
     standardisation = Section("standardisation", "Standardisation", items=m.standardisation, ordered=True)
     procedure = Section("procedure", "Procedure", items=m.procedure, ordered=True)
     calculation = Section("calculation", "Calculation", items=m.calculation)

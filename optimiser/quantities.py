@@ -84,7 +84,8 @@ def is_weighable_mass(mass_mg: float, figures: int = 3) -> bool:
     return mass_mg >= BALANCE_MIN_mg - 1e-9 and sig(mass_mg, figures) == mass_mg
 
 
-_AMOUNT = re.compile(r"(?<![\w.])(\d+(?:\.\d+)?)(?:\s*-\s*(\d+(?:\.\d+)?))?\s*(mL|uL|µL|L|mg|g|kg)\b(?!/)")  # not a unit of a ratio (g/mol, g/mL)
+# a number (or a range) and a unit of volume or mass, not the unit of a ratio (g/mol, g/mL)
+_AMOUNT = re.compile(r"(?<![\w.])(\d+(?:\.\d+)?)(?:\s*-\s*(\d+(?:\.\d+)?))?\s*(mL|uL|µL|L|mg|g|kg)\b(?!/)")
 
 
 def amounts(text: str) -> list[tuple[float, str]]:

@@ -74,7 +74,7 @@ def _indicator(d: Mapping[str, Any]) -> Indicator:
 
 
 def _primary(d: Mapping[str, Any]) -> PrimaryStandard:
-    return PrimaryStandard(d["id"], d["substance"], d["formula"], d["preparation"], d["source"])
+    return PrimaryStandard(d["id"], d["substance"], d["formula"], d["preparation"], d["source"], tuple(d["hazards"]))
 
 
 def _standard(d: Mapping[str, Any]) -> Standard:

@@ -516,6 +516,7 @@ class PrimaryStandard:
     formula: str
     preparation: str
     source: str
+    hazards: tuple[str, ...] = ()  # of the substance and its dissolution (stocks.HAZARD_WORDS)
 
     @property
     def molar_mass(self) -> float:

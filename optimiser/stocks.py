@@ -18,19 +18,24 @@ from .quantities import GRADUATED_MIN_mL, device, graduated_mL, number, sig
 from .reagents import Solution, molar_mass
 
 # the hazard words a stock may carry (stocks.yaml, ``hazards``); GHS's classes in plain words (common practice)
-HAZARD_WORDS = ("corrosive", "flammable", "oxidising", "acutely toxic", "toxic", "harmful", "irritant", "carcinogenic",
-                "reproductive toxicant", "environmental")
+HAZARD_WORDS = ("corrosive", "flammable", "flammable gas", "oxidising", "acutely toxic", "toxic", "toxic fumes", "harmful",
+                "irritant", "carcinogenic", "reproductive toxicant", "environmental", "heating")
 # what each hazard word asks of the analyst (common practice; the safety data sheet has the full text)
 HAZARD_CAUTIONS = {
     "corrosive": "Corrosive: causes severe burns to skin and eyes; wear eye protection, gloves and a lab coat.",
     "flammable": "Flammable (its solvent): keep away from flames and hot plates; close the bottle after use.",
+    "flammable gas": "A metal dissolving in acid gives off hydrogen (flammable): dissolve it in a fume hood, away from "
+                     "flames and sparks.",
     "oxidising": "Oxidising: keep away from organic matter and reducing agents.",
+    "toxic fumes": "Nitric acid gives off toxic nitrous fumes as the metal dissolves: dissolve it in a fume hood.",
+    "heating": "Heated: use a hot plate, not a flame, and handle the hot vessel with tongs or heat-resistant gloves.",
     "acutely toxic": "Acutely toxic: small amounts by mouth, skin or breath can kill; work as the safety officer directs.",
     "toxic": "Toxic: avoid contact and ingestion; wear gloves; collect residues.",
     "harmful": "Harmful if swallowed or inhaled; avoid dust and contact.",
     "irritant": "Irritant to eyes and skin; wear eye protection and gloves.",
     "carcinogenic": "Suspected carcinogen: avoid dust and skin contact; keep the amounts small.",
-    "reproductive toxicant": "May damage fertility or the unborn child: avoid exposure; pregnant staff ask the safety officer.",
+    "reproductive toxicant": "May damage fertility or the unborn child: avoid exposure; pregnant staff ask the safety "
+                             "officer.",
     "environmental": "Toxic to aquatic life: collect residues, never down the drain.",
 }
 HEATING_CAUTION = ("Boiling step: heat on a hot plate (no open flame near flammable solvents) with anti-bumping granules; "
@@ -200,5 +205,6 @@ def buffer_per_litre(kind: str, st: Stock, recipe, conc_M: float, base_fraction:
     return "no stock: the pH is set with a pH meter"
 
 
-__all__ = ["Addition", "HAZARD_CAUTIONS", "HAZARD_WORDS", "HEATING_CAUTION", "Stock", "StockSolution", "buffer_per_litre", "graduated_addition", "grams",
-           "formula_text", "millilitres", "neutraliser", "per_litre", "sig", "stock", "stocks", "GRADUATED_MIN_mL"]
+__all__ = ["Addition", "GRADUATED_MIN_mL", "HAZARD_CAUTIONS", "HAZARD_WORDS", "HEATING_CAUTION", "Stock", "StockSolution",
+           "buffer_per_litre", "formula_text", "graduated_addition", "grams", "millilitres", "neutraliser", "per_litre",
+           "sig", "stock", "stocks"]

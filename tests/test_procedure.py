@@ -136,8 +136,9 @@ def test_direct_titration_steps_and_formula():
     steps = w.procedure
     assert steps[-3].startswith("Add Xylenol orange") and "titrate with EDTA 0.02 mol/L" in steps[-3]
     assert "back-titration" not in " ".join(steps) and "boil" not in " ".join(steps)
-    # 0.02 mol/L x 65.38 g/mol = 1.31 g zinc per litre of primary standard
-    assert w.standardisation[0].startswith("Primary standard: dissolve about 1.31 g zinc metal")
+    # the standard at the sample's level (2 mmol/L): 2 mmol/L x 65.38 g/mol = 131 mg zinc per litre, pipetted as the sample
+    assert w.standardisation[0].startswith("Primary standard: dissolve about 131 mg zinc metal")
+    assert w.standardisation[1].startswith("Pipette 25 mL of the primary standard into a titration flask and carry it")
     assert steps[-2].startswith("Reagent blank")
     assert result_formula(sc, method).startswith("c(Zn) [mmol/L] = 0.02 mol/L x V(titrant) [mL] / 25 mL x 1000")
     assert w.calculation[0].startswith("c(Zn) [mmol/L] = c(titrant) [mol/L] x (V - Vb) [mL] / 25 mL x 1000")

@@ -18,7 +18,7 @@ from optimiser.report.markdown import unescape
 from optimiser.report.pdf import latin1
 from optimiser.scenario import load
 from optimiser.search import run_search
-from optimiser.stocks import HAZARD_CAUTIONS, HEATING_CAUTION, StockSolution, stock, stocks
+from optimiser.stocks import HAZARD_CAUTIONS, HAZARD_WORDS, HEATING_CAUTION, StockSolution, stock, stocks
 
 ROOT = Path(__file__).resolve().parent.parent
 EXAMPLES = sorted((ROOT / "scenarios").glob("*.yaml"))
@@ -111,6 +111,12 @@ def test_every_reagent_has_a_stock_solution():
             assert st is not None, (section, reagent)
             assert st.shelf_life and st.source
     assert {k for k, _ in stocks()} >= {"neutralisers"}
+    for p in cat.primary_standards.values():  # the hazards of weighing and dissolving each primary standard
+        assert p.hazards and set(p.hazards) <= set(HAZARD_CAUTIONS), p.id
+
+
+def test_every_hazard_word_has_its_caution():
+    assert set(HAZARD_WORDS) == set(HAZARD_CAUTIONS)
 
 
 def test_indicator_solutions_in_ethanol_are_flammable_and_ammonia_is_corrosive():
