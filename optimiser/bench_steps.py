@@ -110,10 +110,14 @@ class _Writer:
         timing = f" {st.timing}" if st.timing else ""
         return f"Add {millilitres(v)} of the {label} ({device(v)}){held}; {adjust}.{timing}"
 
-    def masking_steps(self) -> list[str]:
+    def masking_steps(self, after_buffer: bool) -> list[str]:
+        """The masking agents' additions: before the buffer, or (``after_buffer``) those whose stock may only meet an
+        alkaline solution (``alkaline_only`` in stocks.yaml: cyanide gives off hydrogen cyanide in acid)."""
         out = []
         for agent, (_, conc) in zip(self.m.masking_agents, self.m.masking, strict=True):
             st = stock("masking", agent.id)
+            if (st is not None and st.alkaline_only) != after_buffer:
+                continue
             mmol = conc * self.V0
             if st is None or not st.conc_M:
                 self.rows.append(_missing("masking agent", agent.name))
@@ -127,7 +131,9 @@ class _Writer:
             self.rows.append(_stock_row("masking agent", st, f"{label} {c:g} mol/L",
                                         per_litre(agent.formula, c, agent.salt, 2, agent.density_g_mL)))
             self.adds.append(add)
-            out.append(f"Add {add.text}: {number(held / self.V0 * 1000, 2)} mmol/L {agent.name} in the aliquot.")
+            when = (f"Only now that the solution is alkaline (check pH above {agent.min_pH:g} with indicator paper), add "
+                    if after_buffer else "Add ")
+            out.append(f"{when}{add.text}: {number(held / self.V0 * 1000, 2)} mmol/L {agent.name} in the aliquot.")
         return out
 
     def indicator_step(self, colour: str, titrate: str) -> str:
@@ -240,12 +246,13 @@ def written_method(scenario: Scenario, method: Method, t: Titration, formula: st
     neutral = w.neutralise_step()
     if neutral:
         steps.append(neutral)
-    steps += w.masking_steps()
+    steps += w.masking_steps(after_buffer=False)
     if recipe_kind(method.buffer_info) == STRONG_BASE and t.precipitates_start and not method.strategy.uses_standard:
         pre = sig(0.9 * (t.endpoint_mL or t.equivalence_mL), 2)
         steps.append(f"Add about {number(pre)} mL of the titrant from the burette (90 % of the expected titre) before "
                      f"raising the pH, so that {', '.join(t.precipitates_start)} does not carry down the analyte.")
     steps.append(w.buffer_step())
+    steps += w.masking_steps(after_buffer=True)
     colour = f"from {t.colour_change[0]} to {t.colour_change[1]}"
     w.standard_stock()
     if method.strategy.uses_standard:

@@ -287,7 +287,7 @@ _STOCK: Schema = {
     "base_solution": optional(dict, keys=_SOLUTION.keys), "recipe": optional(str), "batch_mL": optional(float, 1000.0),
     "solid": optional(bool, False), "hazards": optional(list, [], items=Key(str)), "shelf_life": Key(str),
     "timing": optional(dict, keys={"text": Key(str), "source": Key(str, reference=True)}),
-    "source": Key(str, reference=True)}
+    "source": Key(str, reference=True), "alkaline_only": optional(bool, False)}
 
 SCHEMAS: dict[tuple[str, str | None], Schema] = {
     ("metals.yaml", None): {

@@ -97,7 +97,7 @@ def method_document(scenario: Scenario, t: Titration, m: BenchMethod, meets_crit
         f"{scenario.targets.max_error_percent:g} % to a full burette); the sample as described holds "
         f"{sum(scenario.sample.metals[a] for a in scenario.sample.analyte) * 1000:.3g} mmol/L. Outside the range "
         "take another aliquot volume, and check the error again.",))
-    principle_text = (f"{analyte} is determined by {m.strategy} with {m.titrant_name} ({m.titrant_conc_M:g} mol/L) at "
+    principle_text = (f"{analyte[:1].upper()}{analyte[1:]} is determined by {m.strategy} with {m.titrant_name} ({m.titrant_conc_M:g} mol/L) at "
                       f"pH {m.pH:.2f} ({m.buffer_name}); {m.indicator_name} turns from {m.colour_change[0]} to "
                       f"{m.colour_change[1]} at the end point.")
     if m.masking:

@@ -63,6 +63,7 @@ class Stock:
     timing: str | None
     timing_source: str | None
     source: str
+    alkaline_only: bool = False
 
     def __post_init__(self) -> None:
         where = f"stocks.yaml {self.section}/{self.id}"
@@ -94,7 +95,7 @@ def stocks() -> dict[tuple[str, str], Stock]:
             out[(section, d["id"])] = Stock(
                 section, d["id"], d["name"], d["formula"], tuple(d["conc_M"]), d["dissolve"], _solution(d["acid_solution"]),
                 _solution(d["base_solution"]), d["recipe"], d["batch_mL"], d["solid"], tuple(d["hazards"]), d["shelf_life"],
-                timing.get("text"), timing.get("source"), d["source"])
+                timing.get("text"), timing.get("source"), d["source"], d["alkaline_only"])
     return out
 
 

@@ -244,3 +244,28 @@ def test_the_cli_refuses_an_unknown_format_before_searching(capsys, tmp_path):
     err = capsys.readouterr().err
     assert "docx" in err and "html" in err and "pdf" in err
     assert list(tmp_path.iterdir()) == []
+
+
+def test_cyanide_goes_in_only_after_the_buffer_and_TEA_before_it():
+    """Cyanide meets only an alkaline solution (hydrogen cyanide in acid: ``alkaline_only``, common practice); TEA goes
+    in before the pH is raised (it must hold iron and aluminium before their hydroxides form, reagents.yaml)."""
+    from optimiser.bench_steps import written_method
+    from optimiser.method import Sample
+    from optimiser.procedure import result_formula
+    from optimiser.scenario import parse
+    from optimiser.titration import simulate
+    sc = parse("""
+name: cn
+sample: {volume: 25 mL, pH: 2}
+analyte: {metals: {Ca: 1 mmol/L}}
+interferents: {Zn: 0.5 mmol/L}
+titrant: {concentration: 0.01 M}
+""", "cn.yaml")
+    method = Method(pH=10.0, buffer="ammonia", titrant="EDTA", titrant_conc_M=0.01, indicator="EBT",
+                    masking=(("cyanide", 0.01), ("TEA", 0.005)))
+    t = simulate(Sample(25.0, {"Ca": 0.001, "Zn": 0.0005}, ("Ca",)), method)
+    steps = written_method(sc, method, t, result_formula(sc, method)).procedure
+    at = {key: next(k for k, x in enumerate(steps) if key in x)
+          for key in ("Neutralise", "triethanolamine solution", "adjust to pH", "cyanide")}
+    assert at["Neutralise"] < at["triethanolamine solution"] < at["adjust to pH"] < at["cyanide"]
+    assert steps[at["cyanide"]].startswith("Only now that the solution is alkaline (check pH above 9")
