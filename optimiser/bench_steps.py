@@ -23,6 +23,7 @@ from .units import molar_mass_of_metal
 
 CHECK_TEMPERATURE_C = 2.0  # the sample, standard and blank titrated within +/- 2 degC of each other (common practice)
 DUPLICATE_FACTOR = 1.0  # duplicates agree within the error target (common practice)
+PRIMARY_STANDARD_KEEPS = "a year, closed"  # a primary standard solution's shelf life (common practice)
 MIN_WEIGHED_g = 0.02  # each substance of a primary standard at least 20 mg per litre (0.5 % at 0.1 mg; common practice)
 
 
@@ -192,7 +193,8 @@ class _Writer:
         label = f"primary standard solution ({', '.join(s.analyte)}), {number(c_std * 1000, 3)} mmol/L"
         source = prims[s.analyte[0]].source if s.analyte[0] in prims else "common_practice"
         self.rows.append(StockSolution("primary standard", label, "per litre: " + "; ".join(weighed)
-                                       + ", made up to 1 L in a volumetric flask", "a year, closed", tuple(hazards), source))
+                                       + ", made up to 1 L in a volumetric flask", PRIMARY_STANDARD_KEEPS, tuple(hazards),
+                                       source))
         self.adds.append(Addition("primary standard", V_std, None, f"{V_std:g} mL of the primary standard"))
         steps = [
             f"Primary standard: dissolve {'; and '.join(weighed)}; make up to 1 L in a volumetric flask. Its "

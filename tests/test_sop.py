@@ -269,3 +269,13 @@ titrant: {concentration: 0.01 M}
           for key in ("Neutralise", "triethanolamine solution", "adjust to pH", "cyanide")}
     assert at["Neutralise"] < at["triethanolamine solution"] < at["adjust to pH"] < at["cyanide"]
     assert steps[at["cyanide"]].startswith("Only now that the solution is alkaline (check pH above 9")
+
+
+def test_a_compromise_is_not_written_as_a_procedure(demo_files):
+    """Where no method meets the criteria, the method document says so and gives no procedure to follow."""
+    import dataclasses
+    from optimiser.report.markdown import render_md
+    a, _ = demo_files
+    md = render_md(dataclasses.replace(a, meets_criteria=False))
+    procedure = md.split(". Procedure\n", 1)[1].split("\n## ", 1)[0]
+    assert "Not given for a method that fails the criteria" in procedure and "Pipette" not in procedure
