@@ -126,7 +126,7 @@ class _Writer:
                 self.adds.append(Addition(agent.name, None, g * 1000, grams(g)))
                 out.append(f"Add {grams(g)} {agent.salt} ({agent.name}).")
                 continue
-            label = f"{agent.name} solution"
+            label = f"{agent.salt.split(' (')[0]} solution"
             add, held = graduated_addition(agent.name, mmol, st, label)
             c = st.strength_for(mmol)
             self.rows.append(_stock_row("masking agent", st, f"{label} {c:g} mol/L",
@@ -134,7 +134,7 @@ class _Writer:
             self.adds.append(add)
             when = (f"Only now that the solution is alkaline (check pH above {agent.min_pH:g} with indicator paper), add "
                     if after_buffer else "Add ")
-            out.append(f"{when}{add.text}: {number(held / self.V0 * 1000, 2)} mmol/L {agent.name} in the aliquot.")
+            out.append(f"{when}{add.text}: {number(held / self.V0 * 1000, 2)} mmol/L {agent.ligand} in the aliquot.")
         return out
 
     def indicator_step(self, colour: str, titrate: str) -> str:
@@ -206,7 +206,8 @@ class _Writer:
         ]
         if self.m.strategy.uses_standard:
             std = self.m.strategy.variant(self.m)
-            steps.append(f"c({std}) [mol/L] = c(standard) [mol/L] x {V_std:g} mL / (Vb - V1) [mL], with V1 the mean "
+            steps.append(f"c({std} standard) [mol/L] = c(primary standard) [mol/L] x {V_std:g} mL / (Vb - V1) [mL], with "
+                         "V1 the mean "
                          f"back-titre of the standard and Vb the reagent blank's (the blank holds the same pipetted "
                          f"excess of {titrant}, so the titrant's own concentration cancels; common practice).")
         else:
@@ -290,8 +291,9 @@ def _calculation(scenario: Scenario, method: Method, V_x: float | None, formula:
     label = scenario.analyte_label
     if method.strategy.uses_standard:
         std = method.strategy.variant(method)
-        lines = [f"n({label}) [mmol] = c({std}) [mol/L] x (Vb - V) [mL], with Vb the reagent blank's back-titre (it holds "
-                 f"the whole {V_x or 0:g} mL excess), V the sample's and c({std}) as standardised (common practice)",
+        lines = [f"n({label}) [mmol] = c({std} standard) [mol/L] x (Vb - V) [mL], with Vb the reagent blank's back-titre "
+                 f"(it holds the whole {V_x or 0:g} mL excess), V the sample's and c({std} standard) as standardised "
+                 "(common practice)",
                  f"c({label}) [mmol/L] = n [mmol] / {V0} mL x 1000"]
     else:
         lines = [f"c({label}) [mmol/L] = c(titrant) [mol/L] x (V - Vb) [mL] / {V0} mL x 1000, with V the sample's "
