@@ -52,7 +52,9 @@ def _interferences(scenario: Scenario, t: Titration) -> tuple[str, ...]:
         where = ""
         if end:
             share = {k: v for k, v in end.items() if v > 0.005}
-            where = ", ".join(f"{k} {100 * v:.0f} %" for k, v in sorted(share.items(), key=lambda kv: -kv[1]))
+            agents = ", ".join(a.name for a in t.method.masking_agents)
+            where = ", ".join(f"{k}{f' (by {agents})' if k == 'masked' and agents else ''} {100 * v:.0f} %"
+                              for k, v in sorted(share.items(), key=lambda kv: -kv[1]))
         titrated = t.cotitrated.get(metal)
         held = "held out of the titration by an assumption stated in the report" if metal in t.masked_by_assumption else ""
         parts = [f"{metal} ({scenario.sample.metals[metal] * 1000:.3g} mmol/L in the sample)"]
