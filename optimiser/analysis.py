@@ -20,7 +20,8 @@ import yaml
 from .comparison import ComparisonTable, comparison_table
 from .conditional import Conditions, conditional_constant, feasibility
 from .constants import database
-from .errors import MissingConstantError
+from .errors import DataError, MissingConstantError
+from .method_document import MethodDocument, method_document
 from .method import Method, as_titrated
 from .procedure import BenchMethod, bench_method
 from .objectives import COTITRATED_SHARE_MAX, PH_DRIFT_MAX, READABLE_DROPS
@@ -29,6 +30,7 @@ from .reagents import HAZARD_NAMES, catalogue
 from .scenario import Scenario
 from .search import Evaluation, SearchResult
 from .search_stats import SearchStats
+from .stocks import HAZARD_CAUTIONS, HEATING_CAUTION
 from .strategies import strategy
 from .titration import Titration
 
@@ -173,6 +175,7 @@ class Analysis:
     comparison: ComparisonTable | None = None  # the scenario's listed methods beside the recommendation
     listed_safety: tuple[SafetyItem, ...] = ()  # cautions for the listed methods' reagents the recommendation lacks
     search_stats: SearchStats | None = None  # how the search went (None where the search did not count)
+    document: MethodDocument | None = None  # the method as a laboratory method document (the SOP formats)
 
 
 def metal_order(scenario: Scenario) -> tuple[str, ...]:
@@ -348,16 +351,33 @@ def speciation_rows(scenario: Scenario, t: Titration) -> tuple[SpeciationRow, ..
     return tuple(rows)
 
 
-def safety(method: Method | None) -> tuple[SafetyItem, ...]:
-    """Each reagent's hazard class and the cautions its data entry gives (the report adds that these defer to the
-    safety data sheet, local regulations and the safety officer)."""
+def safety(method: Method | None, bench: BenchMethod | None = None) -> tuple[SafetyItem, ...]:
+    """Each reagent's hazard class and the cautions its data entry gives, the hazards of its stock solution (a
+    flammable solvent, a corrosive concentrate), a heating step, and the rules on combinations of reagents (the
+    report adds that these defer to the safety data sheet, local regulations and the safety officer).
+
+    Raises
+    ------
+    DataError
+        Where two of the cautions contradict each other (``safety_contradictions`` in reagents.yaml).
+    """
     if method is None:
         return ()
     reagents = [method.buffer_info, *method.masking_agents, method.titrant_info]
     items = [SafetyItem(r.name, HAZARD_NAMES[r.hazard], tuple(r.cautions)) for r in reagents]
+    if bench is not None:
+        for s in bench.stocks:
+            if s.hazards:
+                items.append(SafetyItem(f"Stock: {s.name}", ", ".join(s.hazards), tuple(HAZARD_CAUTIONS[h] for h in s.hazards)))
+        if bench.heated:
+            items.append(SafetyItem("Heating step", "heating", (HEATING_CAUTION,)))
     ids = [method.buffer, method.titrant, method.indicator, *(a for a, _ in method.masking)]
     items += [SafetyItem(rule.name, HAZARD_NAMES[rule.hazard], tuple(rule.cautions))
               for rule in catalogue().safety_rules_for(ids)]  # rules on combinations of reagents (reagents.yaml)
+    conflicts = catalogue().safety_conflicts(c for item in items for c in item.cautions)
+    if conflicts:
+        raise DataError("contradicting safety instructions for one method: "
+                        + "; ".join(f"{name}: {a!r} against {b!r}" for name, a, b in conflicts))
     return tuple(items)
 
 
@@ -460,15 +480,18 @@ def analyse(result: SearchResult) -> Analysis:
     """Everything the report shows, computed once from the search result."""
     sc, e, t = result.scenario, result.recommended, result.recommended_titration
     has_method = e is not None and t is not None
-    cautions = safety(t.method if has_method else None)
+    bench = bench_method(sc, t.method, t, e.margin) if has_method else None
+    cautions = safety(t.method if has_method else None, bench)
+    constants = constants_table(t, t.sample.temperature_C if t is not None else sc.sample.temperature_C, sc)
+    document = (method_document(sc, t, bench, result.meets_criteria, cautions, t.method.indicator_info.sources,
+                                len(constants)) if has_method else None)
     return Analysis(
         result=result, scenario=sc, meets_criteria=result.meets_criteria, budget=budget_rows(sc, t),
         standardised_error_percent=t.standardised_error_percent if t is not None else None, metals=metal_order(sc),
-        method=bench_method(sc, t.method, t, e.margin) if has_method else None,
+        method=bench, document=document,
         criteria=criteria(sc, e, t) if has_method else (), log_K_table=log_K_table(result),
         alternatives=alternatives(result), categories=CATEGORIES, safety=cautions,
-        constants=constants_table(t, t.sample.temperature_C if t is not None else sc.sample.temperature_C, sc),
-        robustness_edges=robustness_edges(result),
+        constants=constants, robustness_edges=robustness_edges(result),
         robust_pH=tuple(result.robust_pH) if result.robust_pH else None, robust_dose=dict(result.robust_dose),
         scenario_text=yaml.safe_dump(dict(sc.as_read), sort_keys=False, allow_unicode=True),
         comparison=comparison_table(result), listed_safety=listed_safety(result, cautions),

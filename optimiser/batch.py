@@ -51,7 +51,8 @@ def method_text(candidate: Any) -> str:
             + (f", {s.describe(candidate)}" if s.uses_standard else ""))
 
 
-def run_one(path: str, out_dir: str, seed: int, base: str | None = None, report_format: str = DEFAULT_FORMAT) -> BatchRow:
+def run_one(path: str, out_dir: str, seed: int, base: str | None = None,
+            report_format: str | tuple[str, ...] = DEFAULT_FORMAT) -> BatchRow:
     """Load, search, report one scenario; never raises (a failure becomes a row with its message)."""
     import time
 
@@ -155,7 +156,7 @@ def _unique_bases(paths: list[Path]) -> list[str]:
 
 
 def run_batch(paths: list[Path], out_dir: Path, jobs: int | None = None, seed: int = 1, progress: bool = True,
-              report_format: str = DEFAULT_FORMAT) -> list[BatchRow]:
+              report_format: str | tuple[str, ...] = DEFAULT_FORMAT) -> list[BatchRow]:
     """Run every scenario (in parallel processes) and write the index and the summary; rows in input order."""
     jobs = jobs or os.cpu_count() or 1
     out_dir.mkdir(parents=True, exist_ok=True)

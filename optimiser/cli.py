@@ -64,9 +64,10 @@ def _integer(text: str, what: str, lo: int, hi: int) -> int:
 
 def _format_option(parser: argparse.ArgumentParser) -> None:
     from .report import DEFAULT_FORMAT, FORMATS
-    parser.add_argument("--format", default=DEFAULT_FORMAT, choices=tuple(FORMATS), metavar="FORMAT",
-                        help=f"report format: {', '.join(FORMATS)} (default {DEFAULT_FORMAT}); the JSON result is "
-                             "always written beside it")
+    parser.add_argument("--format", action="append", metavar="FORMAT",
+                        help=f"report format: {', '.join(FORMATS)} (default {DEFAULT_FORMAT}); several as html,md,pdf "
+                             "or by repeating the option; html is the full report, md and pdf the method as a "
+                             "laboratory method document; the JSON result is always written beside them")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -393,6 +394,7 @@ def _cmd_run(a) -> int:
     from .strategies import strategy
     sc = _load_scenario(a.scenario)
     seed = _integer(a.seed, "--seed", 0, 2 ** 31 - 1)
+    formats = report.parse_formats(a.format or [report.DEFAULT_FORMAT])
     writable_folder(Path(a.out), "--out")  # before the search, not after it
     tty = sys.stderr.isatty()
     _solver_ready()
@@ -406,7 +408,7 @@ def _cmd_run(a) -> int:
     if tty:
         sys.stderr.write("\n")
     sys.stderr.write("writing the report...\n")
-    report_path, json_path = report.write(result, Path(a.out), dumps(to_json(result)), report_format=a.format,
+    report_path, json_path = report.write(result, Path(a.out), dumps(to_json(result)), report_format=formats,
                                           analysis=analyse(result))
     e = result.recommended
     print(f"{name}: {result.evaluations} evaluations in {result.wall_time_s:.1f} s (seed {seed})")
@@ -427,7 +429,8 @@ def _cmd_run(a) -> int:
               f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {t.standardised_error_percent:+.2f} %")
         print("\n".join(_budget_lines(t)))
     print("\n".join(_listed_lines(result)))
-    print(f"  report: {printable(str(report_path))}")
+    for fmt in formats:
+        print(f"  report: {printable(str(report_path.with_suffix('.' + fmt)))}")
     print(f"  data:   {printable(str(json_path))}")
     return 0 if result.meets_criteria else 1
 
@@ -483,8 +486,10 @@ def _cmd_batch(a) -> int:
     from .batch import run_batch
     from .results import writable_folder
     from .scenario import find_scenarios
+    from .report import DEFAULT_FORMAT, parse_formats
     jobs = _integer(a.jobs, "--jobs", 1, 256) if a.jobs is not None else None
     seed = _integer(a.seed, "--seed", 0, 2 ** 31 - 1)
+    formats = parse_formats(a.format or [DEFAULT_FORMAT])
     paths = find_scenarios(a.paths)
     missing = [printable(str(p)) for p in paths if not p.exists()]
     if missing:
@@ -493,7 +498,7 @@ def _cmd_batch(a) -> int:
         raise InputError("no scenario files (*.yaml, *.yml) in the paths given")
     writable_folder(Path(a.out), "--out")
     _solver_ready()
-    rows = run_batch(paths, Path(a.out), jobs=jobs, seed=seed, progress=True, report_format=a.format)
+    rows = run_batch(paths, Path(a.out), jobs=jobs, seed=seed, progress=True, report_format=formats)
     for r in rows:
         print(f"{r.status.upper():<9} {printable(r.name)}: {printable(r.method if r.ok else r.message)}")
     print(f"index: {printable(str(Path(a.out) / 'index.html'))}")

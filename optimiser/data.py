@@ -282,6 +282,16 @@ _ALIASES = optional(list, [], items=Key(str))
 
 RECIPE_KINDS = ("salt_plus_base_solution", "salt_plus_acid_solution", "base_plus_acid_solution", "strong_base", "strong_acid")
 
+# A stock solution (stocks.yaml): one schema for every section; the stocks module reads what each section uses.
+STOCK_SECTIONS = ("titrants", "buffers", "masking", "indicators", "standards", "neutralisers")
+_STOCK: Schema = {
+    "id": Key(str), "name": optional(str), "formula": optional(str), "conc_M": optional(list, [], items=Key(float)),
+    "dissolve": optional(str, ""), "acid_solution": optional(dict, keys=_SOLUTION.keys),
+    "base_solution": optional(dict, keys=_SOLUTION.keys), "recipe": optional(str), "batch_mL": optional(float, 1000.0),
+    "solid": optional(bool, False), "hazards": optional(list, [], items=Key(str)), "shelf_life": Key(str),
+    "timing": optional(dict, keys={"text": Key(str), "source": Key(str, reference=True)}),
+    "source": Key(str, reference=True), "alkaline_only": optional(bool, False)}
+
 SCHEMAS: dict[tuple[str, str | None], Schema] = {
     ("metals.yaml", None): {
         "id": Key(str), "element": Key(str), "charge": Key(int), "name": Key(str), "aliases": _ALIASES,
@@ -310,7 +320,7 @@ SCHEMAS: dict[tuple[str, str | None], Schema] = {
         "id": Key(str), "name": Key(str), "salt": Key(str), "formula": Key(str), "hazard": _HAZARD, "cautions": _TEXTS},
     ("reagents.yaml", "primary_standards"): {
         "id": Key(str), "substance": Key(str), "formula": Key(str), "preparation": Key(str),
-        "source": Key(str, reference=True)},
+        "source": Key(str, reference=True), "hazards": optional(list, [], items=Key(str))},
     ("reagents.yaml", "safety_rules"): {
         "name": Key(str), "when_all": Key(list, items=Key(str)), "unless_any": optional(list, [], items=Key(str)),
         "hazard": _HAZARD, "cautions": _TEXTS},
@@ -320,6 +330,9 @@ SCHEMAS: dict[tuple[str, str | None], Schema] = {
     ("anions.yaml", "inputs"): {
         "id": Key(str), "ligand": Key(str), "formula": Key(str), "as": Key(dict, items=Key(float)), "molar": Key(str),
         "aliases": _ALIASES, "note": optional(str, "")},
+    ("reagents.yaml", "safety_contradictions"): {
+        "name": Key(str), "first": Key(str), "second": Key(str), "resolution": Key(str)},
+    **{("stocks.yaml", section): _STOCK for section in STOCK_SECTIONS},
     ("indicators.yaml", None): {
         "id": Key(str), "name": Key(str), "aliases": _ALIASES,
         "forms": Key(dict, items=Key(str)), "complex_colours": Key(dict, items=Key(str)),

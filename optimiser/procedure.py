@@ -7,7 +7,6 @@ reagent's data entry declares (the buffer's solutions and salts). No mode or rea
 from __future__ import annotations
 
 import math
-import re
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -16,6 +15,7 @@ from .constants import H, database, davies_A, davies_f, log_K_at
 from .method import Method
 from .reagents import HAZARD_NAMES, Buffer, molar_mass
 from .scenario import Scenario
+from .stocks import Addition, StockSolution, formula_text
 from .titration import Titration
 from .units import molar_mass_of_metal
 
@@ -61,15 +61,6 @@ def free_hydrogen_M(pH: float, ionic_strength_M: float, temperature_C: float) ->
     12.8
     """
     return 10.0 ** (-pH - log_gamma_1(ionic_strength_M, temperature_C))
-
-
-def formula_text(formula: str) -> str:
-    """A salt formula as printed on a bottle: water of crystallisation as a dot.
-
-    >>> formula_text("C2H3NaO2(H2O)3")
-    'C2H3NaO2·3H2O'
-    """
-    return re.sub(r"\(H2O\)(\d*)$", lambda m: f"·{m.group(1)}H2O", formula)
 
 
 _KINDS = {  # the data's recipe kinds (reagents.yaml, ``recipe.kind``) -> the recipe writers below
@@ -224,89 +215,14 @@ def strategy_text(method: Method) -> str:
     return f"{s.label} with {s.variant(method)}" if s.uses_standard else s.label
 
 
-def _excess_first(method: Method, t: Titration) -> bool:
-    """A slow analyte reacts with the excess in the still acidic sample, before it is buffered (and its hydroxide
-    can form), on heating (common practice)."""
-    return method.strategy.uses_standard and t.excess_mL is not None and bool(t.slow_analytes)
-
-
-def bench_steps(scenario: Scenario, method: Method, t: Titration, recipe: list[str], masking: list[MaskingDose],
-                formula: str) -> list[str]:
-    """The numbered steps of the bench procedure, in the order they are done."""
-    V0, cT = scenario.sample.volume_mL, method.titrant_conc_M
-    ind, titrant = method.indicator_info, method.titrant
-    steps = [f"Pipette {V0:g} mL of sample into a titration flask."]
-    dissolving = [f for f in t.findings if f.kind == "anion_solid_dissolves"]  # e.g. CaCO3 from the sample's carbonate
-    strong_base = recipe_kind(method.buffer_info) == STRONG_BASE
-    if (strong_base and t.precipitates_start or dissolving) and not method.strategy.uses_standard:
-        pre = 0.9 * (t.endpoint_mL or t.equivalence_mL)
-        step = (f"Add about 90 % of the expected titrant ({pre:.1f} mL) before {'raising the pH' if strong_base else 'the buffer'}, "
-                f"so that no {', '.join(t.precipitates_start)} forms to carry down the analyte")
-        if dissolving:
-            expel = "; or ".join(dict.fromkeys(f.values["expel"] for f in dissolving))
-            step += ("; then finish the titration within 5 minutes (the five-minute rule of Standard Methods 2340 C). "
-                     f"Where the titre is not known in advance, first {expel}")
-        steps.append(step + ".")
-    heated = _excess_first(method, t)
-    if heated:
-        steps.append(f"Add {t.excess_mL:.2f} mL of {cT:g} M {titrant} (an excess) to the sample before it is buffered "
-                     "(it should be acidic, about pH 3); boil gently for 3-5 minutes and cool (common practice).")
-    steps += [f"Add {m.amount} ({m.name}; {m.conc_M * 1000:.3g} mmol/L in the aliquot)." for m in masking]
-    if scenario.sample.acid_M > 0:
-        n_acid = scenario.sample.acid_M * V0  # mmol of H+ in the aliquot
-        steps.append(f"Neutralise the sample's own acid ({n_acid:.2g} mmol H+) first: about {n_acid / 1.0:.2g} mL of "
-                     "1 M sodium hydroxide, added slowly with swirling, so that the buffer keeps its full capacity "
-                     "(common practice).")
-    steps.append(f"Buffer ({method.buffer_info.name}): " + "; ".join(recipe) + ".")
-    if t.sample.temperature_C != scenario.sample.temperature_C:  # the indicator's working temperature (as_titrated)
-        steps.append(f"Warm the solution to {t.sample.temperature_C:g} degC and keep it within about 5 degC of that "
-                     f"to the end point: {ind.name} is read at that temperature in published practice.")
-    colour = f"from {t.colour_change[0]} to {t.colour_change[1]}"
-    if method.strategy.uses_standard:
-        std = method.strategy.variant(method)
-        excess = "" if heated or t.excess_mL is None else f"Add {t.excess_mL:.2f} mL of {cT:g} M {titrant} (an excess); "
-        steps.append(excess + f"{'add' if excess else 'Add'} {ind.name} ({ind.dose}) and titrate with "
-                     f"{method.back_concentration:g} M {std} standard {colour}.")
-    else:
-        steps.append(f"Add {ind.name} ({ind.dose}) and titrate with {cT:g} M {titrant} {colour}.")
-    steps.append("Reagent blank: carry the same volume of deionised water through these steps with every reagent and "
-                 "subtract its titre from the sample's and the standard's (common practice).")
-    steps.append("Calculate: " + formula + ".")
-    return [standardisation_step(scenario, method, t)] + steps
-
-
-def standardisation_step(scenario: Scenario, method: Method, t: Titration) -> str:
-    """How the titrant is standardised: a primary standard of the analyte (the data's ``primary_standards``), made up
-    to the sample's level and carried through the same steps with the same indicator dose."""
-    from .reagents import catalogue
-
-    sample = scenario.sample
-    prims = catalogue().primary_standards
-    parts = []
-    for a in sample.analyte:
-        p = prims.get(a)
-        if p is None:
-            parts.append(f"a standard solution of {a} of known concentration, {sample.metals[a] * 1000:.2g} mmol/L")
-        else:
-            grams = sample.metals[a] * 0.250 * p.molar_mass  # per 250 mL at the sample's level
-            parts.append(f"about {_two_sig(grams * 1000)} mg {p.substance} ({p.formula}), weighed to 0.1 mg, "
-                         f"{p.preparation}")
-    std = t.standardisation
-    cancels = (f" It cancels what the analyte alone shows (predicted {std.error_percent:+.2f} % by the same method)."
-               if std is not None and std.error_percent is not None else "")
-    return ("Standardise the titrant first, with the same indicator and dose: " + "; and ".join(parts)
-            + f", made up to 250 mL in a volumetric flask; pipette {sample.volume_mL:g} mL and carry it through the "
-            "steps below; c(titrant) = n(standard) / V(titrant at the end point), in duplicate (common practice)."
-            + cancels)
-
-
-def _two_sig(x: float) -> str:
-    return f"{float(f'{x:.2g}'):g}"
-
-
 @dataclass(frozen=True)
 class BenchMethod:
-    """The recommended method as an analyst runs it, with its figures of merit (plain data for any report format)."""
+    """The recommended method as an analyst runs it, with its figures of merit (plain data for any report format).
+
+    ``stocks`` (with per-litre recipes), ``standardisation``, ``procedure`` (numbered steps), ``calculation`` and
+    ``quality_control`` are the written method (:mod:`optimiser.bench_steps`); ``additions`` lists every amount the
+    procedure adds to an aliquot, as measured.
+    """
 
     aliquot_mL: float
     pH: float
@@ -342,10 +258,17 @@ class BenchMethod:
     warnings: tuple[str, ...]
     assumptions: tuple[str, ...]
     indicator_blank_percent: float | None
+    stocks: tuple[StockSolution, ...] = ()
+    additions: tuple[Addition, ...] = ()
+    standardisation: tuple[str, ...] = ()
+    calculation: tuple[str, ...] = ()
+    quality_control: tuple[str, ...] = ()
+    heated: bool = False
 
 
 def bench_method(scenario: Scenario, method: Method, t: Titration, margin: float | None) -> BenchMethod:
     """The bench procedure and figures of merit of ``method`` as simulated in ``t``."""
+    from .bench_steps import written_method  # the written steps build on the recipe helpers above
     V0 = scenario.sample.volume_mL
     buf, tit = method.buffer_info, method.titrant_info
     extra_OH = hydroxide_in_solids_mmol(t) if recipe_kind(buf) == STRONG_BASE else 0.0
@@ -354,6 +277,7 @@ def bench_method(scenario: Scenario, method: Method, t: Titration, margin: float
                            extra_OH)
     masking = masking_doses(method, V0)
     formula = result_formula(scenario, method)
+    written = written_method(scenario, method, t, formula)
     uses_standard = method.strategy.uses_standard
     return BenchMethod(
         aliquot_mL=V0, pH=method.pH, buffer=buf.id, buffer_name=buf.name, buffer_total_M=total_buf,
@@ -366,16 +290,18 @@ def bench_method(scenario: Scenario, method: Method, t: Titration, margin: float
         predicted_error_percent=t.error_percent, selectivity_margin_log=margin, endpoint_sharpness_mL=t.sharpness_mL,
         endpoint_sharpness_drops=t.sharpness_drops, hazard=HAZARD_NAMES[method.hazard], hazard_level=method.hazard,
         precipitates=tuple(sorted(set(t.precipitates_start) | set(t.precipitates_end))), formula=formula,
-        procedure=tuple(bench_steps(scenario, method, t, recipe, masking, formula)), warnings=tuple(t.warnings),
-        assumptions=tuple(t.assumptions), indicator_blank_percent=t.indicator_blank_percent)
+        procedure=written.procedure, warnings=tuple(t.warnings), assumptions=tuple(t.assumptions),
+        indicator_blank_percent=t.indicator_blank_percent, stocks=written.stocks, additions=written.additions,
+        standardisation=written.standardisation, calculation=written.calculation,
+        quality_control=written.quality_control, heated=written.heated)
 
 
 __all__ = [
     "BenchMethod",
     "MaskingDose",
     "bench_method",
-    "bench_steps",
     "buffer_recipe",
+    "formula_text",
     "free_hydrogen_M",
     "free_hydroxide_M",
     "masking_doses",

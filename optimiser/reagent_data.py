@@ -21,6 +21,7 @@ from .reagents import (
     Indicator,
     MaskingAgent,
     PrimaryStandard,
+    SafetyContradiction,
     SafetyRule,
     Solution,
     Standard,
@@ -75,7 +76,7 @@ def _indicator(d: Mapping[str, Any]) -> Indicator:
 
 
 def _primary(d: Mapping[str, Any]) -> PrimaryStandard:
-    return PrimaryStandard(d["id"], d["substance"], d["formula"], d["preparation"], d["source"])
+    return PrimaryStandard(d["id"], d["substance"], d["formula"], d["preparation"], d["source"], tuple(d["hazards"]))
 
 
 def _standard(d: Mapping[str, Any]) -> Standard:
@@ -162,6 +163,7 @@ def catalogue() -> Catalogue:
         standards=_built("reagents.yaml", "standards", _standard),
         safety_rules=tuple(_built("reagents.yaml", "safety_rules", _rule).values()),
         primary_standards=_built("reagents.yaml", "primary_standards", _primary),
+        safety_contradictions=tuple(SafetyContradiction(**d) for d in data.entries("reagents.yaml", "safety_contradictions")),
     )
     # names that must resolve elsewhere: metal ids, ligand charges, the reagent ids of the safety rules
     _check_indicators(cat)

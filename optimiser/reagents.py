@@ -7,6 +7,8 @@ Molar masses are computed from each reagent's formula with the periodictable pac
 """
 from __future__ import annotations
 
+import re
+
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -371,6 +373,31 @@ class SafetyRule:
 
 
 @dataclass(frozen=True)
+class SafetyContradiction:
+    """Two instructions that must never be printed for the same method: ``first`` and ``second`` are regular
+    expressions (case ignored), each matched within one caution; ``resolution`` says how the data keep them apart."""
+
+    name: str
+    first: str
+    second: str
+    resolution: str
+
+    def __post_init__(self) -> None:
+        for pattern in (self.first, self.second):
+            try:
+                re.compile(pattern)
+            except re.error as exc:
+                raise DataError(f"safety contradiction {self.name!r}: {pattern!r} is not a regular expression ({exc})") from None
+
+    def found_in(self, cautions: Iterable[str]) -> tuple[str, str] | None:
+        """The first caution matching ``first`` and the first matching ``second``, where both are there."""
+        texts = list(cautions)
+        a = next((c for c in texts if re.search(self.first, c, re.IGNORECASE)), None)
+        b = next((c for c in texts if re.search(self.second, c, re.IGNORECASE)), None)
+        return (a, b) if a is not None and b is not None else None
+
+
+@dataclass(frozen=True)
 class Catalogue:
     titrants: dict[str, Titrant]
     buffers: dict[str, Buffer]
@@ -379,6 +406,7 @@ class Catalogue:
     standards: dict[str, Standard] = field(default_factory=dict)
     safety_rules: tuple[SafetyRule, ...] = ()
     primary_standards: dict[str, PrimaryStandard] = field(default_factory=dict)
+    safety_contradictions: tuple[SafetyContradiction, ...] = ()
 
     def titrant(self, name: str) -> Titrant:
         return _pick(self.titrants, name, "titrant")
@@ -446,6 +474,16 @@ class Catalogue:
         ids = tuple(reagent_ids)
         return [r for r in self.safety_rules if r.applies_to(ids)]
 
+    def safety_conflicts(self, cautions: Iterable[str]) -> list[tuple[str, str, str]]:
+        """The contradicting instructions among one method's cautions: (pair name, first text, second text) for
+        each pair of ``safety_contradictions`` (reagents.yaml) found; empty when the texts agree.
+
+        >>> catalogue().safety_conflicts(["Destroy residues with alkaline hypochlorite.", "Never mix it with hypochlorite."])[0][0]
+        'hypochlorite treatment beside an ammonia method'
+        """
+        texts = tuple(cautions)
+        return [(c.name, *found) for c in self.safety_contradictions if (found := c.found_in(texts)) is not None]
+
 
 def spelling(name: str) -> str:
     """A name reduced for matching: case, surrounding space, and the difference between space, - and _ ignored.
@@ -493,6 +531,7 @@ class PrimaryStandard:
     formula: str
     preparation: str
     source: str
+    hazards: tuple[str, ...] = ()  # of the substance and its dissolution (stocks.HAZARD_WORDS)
 
     @property
     def molar_mass(self) -> float:

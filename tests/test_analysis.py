@@ -7,6 +7,8 @@ from pathlib import Path
 
 import pytest
 
+from optimiser.quantities import pipette_mL
+
 from conftest import AL_BACK
 
 from optimiser import report
@@ -85,8 +87,9 @@ def test_back_titration_words_and_titre(al):
     assert any(row.mode == "back (Zn)" for row in a.alternatives)
     titre = next(c for c in a.criteria if c.name == "Titre within the burette")
     assert titre.value == f"{report.fmt(max(t.endpoint_mL, t.excess_mL), 4)} mL" and titre.met
-    assert a.method.procedure[0].startswith("Standardise the titrant first")
-    assert a.method.procedure[2].startswith(f"Add {t.excess_mL:.2f} mL of 0.02 M EDTA (an excess)")
+    assert a.method.standardisation[0].startswith("Primary standard: dissolve about")
+    assert a.method.procedure[2].startswith(f"Pipette {pipette_mL(t.excess_mL, at_least=True):g} mL of EDTA 0.02 mol/L "
+                                            "(an excess)")
 
 
 def test_log_K_table_holds_the_method_pH(bi):
@@ -140,8 +143,8 @@ def test_a_second_format_is_one_function(bi, tmp_path, monkeypatch):
 
 def test_unknown_format_lists_the_known_ones(bi, tmp_path):
     from optimiser.errors import UnknownNameError
-    with pytest.raises(UnknownNameError, match="known report formats: html"):
-        report.write(bi[0], tmp_path, "{}\n", report_format="pdf")
+    with pytest.raises(UnknownNameError, match="known report formats: html, md, pdf"):
+        report.write(bi[0], tmp_path, "{}\n", report_format="docx")
 
 
 def test_the_constants_table_holds_what_the_figures_use():

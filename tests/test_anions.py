@@ -157,7 +157,7 @@ def test_carbonate_at_pH_12_5_warns_about_CaCO3_with_the_remedies():
     candidate = Candidate(12.5, "NaOH", -1.0, "EDTA", (), "calcon_carboxylic", "direct", "Zn")
     assert "analyte_solid" not in {k for k, _ in titration_violations(scenario, candidate, t)}
     steps = " ".join(bench_method(scenario, method, t, None).procedure)
-    assert "90 % of the expected titrant" in steps and "5 minutes" in steps and "drive off CO2" in steps
+    assert "90 % of the expected titre" in steps and "5 minutes" in steps and "drive off CO2" in steps
     # the JSON names the solid with its amount before the titrant, in mmol/L
     doc = titration_json(t)
     assert doc["solids_start_mmol_L"]["CaCO3"] == pytest.approx(facts[0].values["amount_mM"], rel=1e-3)

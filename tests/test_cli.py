@@ -207,12 +207,14 @@ def test_python_dash_m(tmp_path):
 
 def test_run_format_option_lists_the_formats(capsys):
     """--format takes a registered report format; another name stops before any search, naming the allowed ones."""
-    code, _, err = run(capsys, "run", "--format", "pdf")
-    assert code == 2 and "invalid choice: 'pdf'" in err and "'html'" in err and len(err.strip().splitlines()) == 1
-    code, _, err = run(capsys, "batch", "somewhere", "--format", "md")
-    assert code == 2 and "invalid choice: 'md'" in err
+    code, _, err = run(capsys, "run", "--format", "docx")
+    assert code == 2 and "docx" in err and "html, md, pdf" in err and len(err.strip().splitlines()) == 1
+    code, _, err = run(capsys, "run", "--format", "html,md", "--format", "odt")
+    assert code == 2 and "odt" in err
+    code, _, err = run(capsys, "batch", "somewhere", "--format", "txt")
+    assert code == 2 and "txt" in err and "html, md, pdf" in err
     from optimiser.cli import build_parser
     sub = build_parser()._subparsers._group_actions[0].choices
     for command in ("run", "batch"):
         help_text = sub[command].format_help()
-        assert "--format FORMAT" in help_text and "report format: html (default html)" in help_text
+        assert "--format FORMAT" in help_text and "report format: html, md, pdf (default html)" in help_text

@@ -8,8 +8,10 @@ import pytest
 
 from optimiser.method import Method, Sample
 from optimiser.procedure import (ACID_SALT_AND_BASE_SOLUTION, BASE_AND_STRONG_ACID, BASE_SALT_AND_ACID_SOLUTION,
-                                 STRONG_ACID, STRONG_BASE, bench_steps, buffer_recipe, free_hydrogen_M, free_hydroxide_M,
+                                 STRONG_ACID, STRONG_BASE, buffer_recipe, free_hydrogen_M, free_hydroxide_M,
                                  masking_doses, recipe_kind, result_formula)
+from optimiser.bench_steps import written_method
+from optimiser.quantities import pipette_mL
 from optimiser.reagents import catalogue
 from optimiser.scenario import parse
 from optimiser.titration import simulate
@@ -94,17 +96,27 @@ def al_back():
     return sc, method, simulate(sc.sample, method)
 
 
+def _written(sc, method, t):
+    return written_method(sc, method, t, result_formula(sc, method))
+
+
 def _steps(sc, method, t):
-    return bench_steps(sc, method, t, ["recipe"], [], result_formula(sc, method))
+    return list(_written(sc, method, t).procedure)
+
+
+def _index(steps, needle):
+    return next(k for k, x in enumerate(steps) if needle in x)
 
 
 def test_slow_analyte_gets_its_excess_and_boil_before_the_buffer(al_back):
     sc, method, t = al_back
     assert t.slow_analytes == ("Al",)
     steps = _steps(sc, method, t)
-    boil = next(k for k, x in enumerate(steps) if "boil" in x)
-    buffer = next(k for k, x in enumerate(steps) if x.startswith("Buffer"))
+    boil, buffer = _index(steps, "boil"), _index(steps, "adjust to pH")
     assert boil < buffer and "(an excess)" in steps[boil] and "Zn standard" in steps[-3]
+    # the excess is a volumetric pipette's volume, at least the simulated excess (common practice)
+    assert f"Pipette {pipette_mL(t.excess_mL, at_least=True):g} mL of EDTA 0.02 mol/L (an excess)" in steps[boil]
+    assert pipette_mL(t.excess_mL, at_least=True) >= t.excess_mL
 
 
 def test_the_procedure_reads_the_fact_not_the_assumption_text(al_back):
@@ -113,19 +125,23 @@ def test_the_procedure_reads_the_fact_not_the_assumption_text(al_back):
     assert any("boil" in x for x in _steps(sc, method, dataclasses.replace(t, findings=())))
     quick = _steps(sc, method, dataclasses.replace(t, slow_analytes=()))
     assert not any("boil" in x for x in quick)
-    assert "(an excess); add" in quick[-3]  # the excess then goes in after the buffer
+    assert _index(quick, "adjust to pH") < _index(quick, "(an excess) into the flask")  # then after the buffer
 
 
 def test_direct_titration_steps_and_formula():
     sc = parse(AL_BACK.replace("Al: 2 mmol/L", "Zn: 2 mmol/L"), "zn.yaml")
     method = Method(pH=5.5, buffer="acetate", buffer_total_M=0.1, titrant="EDTA", titrant_conc_M=0.02, indicator="xylenol_orange")
     t = simulate(Sample(25.0, {"Zn": 0.002}, ("Zn",)), method)
-    steps = _steps(sc, method, t)
-    assert steps[-3].startswith("Add Xylenol orange") and "titrate with 0.02 M EDTA" in steps[-3]
+    w = _written(sc, method, t)
+    steps = w.procedure
+    assert steps[-3].startswith("Add Xylenol orange") and "titrate with EDTA 0.02 mol/L" in steps[-3]
     assert "back-titration" not in " ".join(steps) and "boil" not in " ".join(steps)
-    assert steps[0].startswith("Standardise the titrant first, with the same indicator and dose: about 33 mg zinc metal")
+    # the standard at the sample's level (2 mmol/L): 2 mmol/L x 65.38 g/mol = 131 mg zinc per litre, pipetted as the sample
+    assert w.standardisation[0].startswith("Primary standard: dissolve about 131 mg zinc metal")
+    assert w.standardisation[1].startswith("Pipette 25 mL of the primary standard into a titration flask and carry it")
     assert steps[-2].startswith("Reagent blank")
     assert result_formula(sc, method).startswith("c(Zn) [mmol/L] = 0.02 mol/L x V(titrant) [mL] / 25 mL x 1000")
+    assert w.calculation[0].startswith("c(Zn) [mmol/L] = c(titrant) [mol/L] x (V - Vb) [mL] / 25 mL x 1000")
 
 
 def test_an_acid_preserved_sample_is_neutralised_before_the_buffer():
@@ -136,6 +152,18 @@ def test_an_acid_preserved_sample_is_neutralised_before_the_buffer():
     method = Method(pH=5.5, buffer="acetate", buffer_total_M=0.1, titrant="EDTA", titrant_conc_M=0.02, indicator="xylenol_orange")
     t = simulate(sc.sample, method)
     steps = _steps(sc, method, t)
-    neutral = next(k for k, x in enumerate(steps) if x.startswith("Neutralise the sample's own acid (0.5 mmol H+)"))
-    buffer = next(k for k, x in enumerate(steps) if x.startswith("Buffer"))
-    assert neutral < buffer and "0.5 mL of 1 M sodium hydroxide" in steps[neutral]
+    neutral = _index(steps, "Neutralise the sample's own acid (0.50 mmol H+ in the aliquot)")
+    assert neutral < _index(steps, "adjust to pH") and "add 0.50 mL of sodium hydroxide (1 mol/L" in steps[neutral]
+
+
+def test_the_buffer_comes_from_its_stock_in_a_measurable_volume():
+    """The acetate stock (2 mol/L total) for 0.1 mol/L in 25 mL: 1.25 mL, measured as 1.2 or 1.3 mL (two significant
+    figures); its per-litre recipe splits the total as the acetate fractions at pH 5.5 give it."""
+    sc = parse(AL_BACK.replace("Al: 2 mmol/L", "Zn: 2 mmol/L"), "zn.yaml")
+    method = Method(pH=5.5, buffer="acetate", buffer_total_M=0.1, titrant="EDTA", titrant_conc_M=0.02, indicator="xylenol_orange")
+    w = _written(sc, method, simulate(sc.sample, method))
+    buffer = next(a for a in w.additions if "acetate buffer" in a.what)
+    assert buffer.volume_mL in (1.2, 1.3)
+    row = next(s for s in w.stocks if s.role == "buffer")
+    grams, acid_mL = map(float, re.match(r"per litre: (\d+) g C2H3NaO2·3H2O and (\d+) mL glacial", row.per_litre).groups())
+    assert 150 < grams < 272 and 5 < acid_mL < 60  # between all-base (2 x 136.08 g) and half (pKa about 4.6)

@@ -124,7 +124,7 @@ def test_back_titration_procedure_adds_the_excess_before_the_buffer():
     r = run_search(sc, seed=1, pop_size=12, n_gen=4, with_robustness=False)
     steps = analyse(r).method.procedure
     excess = next(k for k, x in enumerate(steps) if "(an excess)" in x)
-    buffer = next(k for k, x in enumerate(steps) if x.startswith("Buffer"))
+    buffer = next(k for k, x in enumerate(steps) if "adjust to pH" in x)
     titrate = next(k for k, x in enumerate(steps) if "Zn standard" in x)
     assert excess < buffer < titrate and "boil" in steps[excess]
 

@@ -3,17 +3,20 @@
 This package imports no chemistry module: every number and sentence it shows comes from the analysis. The JSON
 result is written beside every report, whatever the format.
 
-Adding a format: write a function ``(analysis, path) -> None`` and add one line to :data:`FORMATS`; the file takes
-the format's name as its extension.
+Formats: ``html`` (the full report with figures), ``md`` and ``pdf`` (the method as a laboratory method document,
+:mod:`optimiser.report.sop`). Adding a format: write a function ``(analysis, path) -> None`` and add one line to
+:data:`FORMATS`; the file takes the format's name as its extension, and ``--format`` offers it.
 """
 from __future__ import annotations
 
 import unicodedata
-from collections.abc import Callable, Collection
+from collections.abc import Callable, Collection, Iterable
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from .html import FIGURES, SECTIONS, render, write_html
+from .markdown import render_md, write_md
+from .pdf import render_pdf, write_pdf
 from .text import fmt, range_text, signed
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -21,8 +24,31 @@ if TYPE_CHECKING:  # pragma: no cover
 
 FORMATS: dict[str, Callable[[Analysis, Path], None]] = {
     "html": write_html,
+    "md": write_md,
+    "pdf": write_pdf,
 }
 DEFAULT_FORMAT = "html"
+
+
+def parse_formats(formats: str | Iterable[str]) -> tuple[str, ...]:
+    """The report formats asked for: a name, a comma-separated list, or several of either; each once, in order.
+
+    >>> parse_formats(["html,md", "pdf", "md"])
+    ('html', 'md', 'pdf')
+    """
+    from ..errors import UnknownNameError
+    items = [formats] if isinstance(formats, str) else list(formats)
+    out: list[str] = []
+    for item in items:
+        for name in str(item).split(","):
+            name = name.strip().lower()
+            if name not in FORMATS:
+                raise UnknownNameError("report format", name, FORMATS)
+            if name not in out:
+                out.append(name)
+    if not out:
+        raise UnknownNameError("report format", "", FORMATS)
+    return tuple(out)
 
 
 MAX_NAME_BYTES = 100  # of a report's base name, UTF-8; with ".html" and a "-12" suffix it stays far below 255
@@ -64,26 +90,30 @@ def report_base(name: str, taken: Collection[str] = ()) -> str:
     return base
 
 
-def write(result: Any, out_dir: Path, json_text: str, base: str | None = None, report_format: str = DEFAULT_FORMAT,
-          analysis: Analysis | None = None) -> tuple[Path, Path]:
-    """Write DIR/<name>.<report_format> and DIR/<name>.json together (name from the scenario unless given); returns both.
+def write(result: Any, out_dir: Path, json_text: str, base: str | None = None,
+          report_format: str | Iterable[str] = DEFAULT_FORMAT, analysis: Analysis | None = None) -> tuple[Path, Path]:
+    """Write DIR/<name>.<format> for each format asked for (:func:`parse_formats`) and DIR/<name>.json together (name
+    from the scenario unless given); returns the first format's report and the JSON (the others sit beside it, with
+    their format's extension).
 
-    Both files are written in full to temporaries first and then renamed, the JSON last
+    All files are written in full to temporaries first and then renamed, the JSON last
     (:func:`optimiser.results.write_together`): a run's files all appear, or none changes. ``analysis`` is the
     result's analysis when the caller has it; otherwise it is computed here.
     """
-    from ..errors import UnknownNameError
-    if report_format not in FORMATS:
-        raise UnknownNameError("report format", report_format, FORMATS)
+    formats = parse_formats(report_format)
     if analysis is None:
         from ..analysis import analyse  # for callers that hold only the search result
         analysis = analyse(result)
     out_dir = Path(out_dir)
     base = report_base(base or result.scenario.name)
-    report_path, json_path = out_dir / f"{base}.{report_format}", out_dir / f"{base}.json"
+    paths = [out_dir / f"{base}.{fmt}" for fmt in formats]
+    json_path = out_dir / f"{base}.json"
     from ..results import write_together
-    write_together([(report_path, lambda tmp: FORMATS[report_format](analysis, tmp)), (json_path, json_text)])
-    return report_path, json_path
+
+    def writer(fmt: str) -> Callable[[Path], None]:
+        return lambda tmp: FORMATS[fmt](analysis, tmp)
+    write_together([*((p, writer(fmt)) for p, fmt in zip(paths, formats, strict=True)), (json_path, json_text)])
+    return paths[0], json_path
 
 
 __all__ = [
@@ -92,11 +122,16 @@ __all__ = [
     "FORMATS",
     "SECTIONS",
     "fmt",
+    "parse_formats",
     "range_text",
     "render",
+    "render_md",
+    "render_pdf",
     "report_base",
     "safe_name",
     "signed",
     "write",
     "write_html",
+    "write_md",
+    "write_pdf",
 ]
