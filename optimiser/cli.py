@@ -341,12 +341,13 @@ def _method_line(sc, method) -> str:
 
 
 def _endpoint_lines(t) -> list[str]:
-    from .report.text import fmt
+    from .report.text import fmt, signed_fixed
     if t.endpoint_mL is None:
         return ["  end point: none (the indicator does not turn)"]
-    blank = f"  (of which {t.indicator_blank_percent:+.3f} % is analyte held by the indicator)" if t.indicator_blank_percent else ""
+    b = t.indicator_blank_percent
+    blank = f"  (of which {signed_fixed(b)} % is analyte held by the indicator)" if b and signed_fixed(b) != "0.000" else ""
     return [f"  end point:   {t.endpoint_mL:.3f} mL, colour {t.colour_change[0]} -> {t.colour_change[1]}",
-            f"  error:       {t.error_percent:+.3f} %{blank}",
+            f"  error:       {signed_fixed(t.error_percent)} %{blank}",
             f"  sharpness:   {fmt(t.sharpness_mL)} mL ({fmt(t.sharpness_drops)} drops of 0.05 mL)"
             + ("  too gradual" if t.too_gradual else "")]
 
@@ -386,6 +387,7 @@ def _cmd_simulate(a) -> int:
 def _cmd_run(a) -> int:
     from . import report
     from .analysis import analyse
+    from .report.text import signed_fixed
     from .results import dumps, to_json, writable_folder
     from .search import run_search
     from .strategies import strategy
@@ -420,9 +422,9 @@ def _cmd_run(a) -> int:
               + (", ".join(f"{m} {d * 1000:.3g} mM" for m, d in c.masking) or "no masking")
               + f", {strategy(c.mode).describe(c)}")
         t = result.recommended_titration
-        print(f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {t.standardised_error_percent:+.2f} %, sharpness {t.sharpness_mL:.3f} mL, "
-              f"robust pH {result.robust_pH[0]:.2f}-{result.robust_pH[1]:.2f}" if result.robust_pH else
-              f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {t.standardised_error_percent:+.2f} %")
+        print(f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {signed_fixed(t.standardised_error_percent, 2)} %, "
+              f"sharpness {t.sharpness_mL:.3f} mL, robust pH {result.robust_pH[0]:.2f}-{result.robust_pH[1]:.2f}" if result.robust_pH else
+              f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {signed_fixed(t.standardised_error_percent, 2)} %")
         print("\n".join(_budget_lines(t)))
     print(f"  report: {printable(str(report_path))}")
     print(f"  data:   {printable(str(json_path))}")
@@ -432,19 +434,21 @@ def _cmd_run(a) -> int:
 def _budget_lines(t) -> list[str]:
     """The error budget by cause, as simulated and after standardisation, largest first."""
     from .readout import budget_label
+    from .report.text import signed_fixed
     if not t.budget:
         return []
     std = t.standardised_budget
-    lines = [f"  error after standardisation {t.standardised_error_percent:+.3f} % (as simulated {t.error_percent:+.3f} %); "
-             "by cause, as simulated / after standardisation:"]
+    lines = [f"  error after standardisation {signed_fixed(t.standardised_error_percent)} % (as simulated "
+             f"{signed_fixed(t.error_percent)} %); by cause, as simulated / after standardisation:"]
     for k in sorted(std, key=lambda k: -abs(std[k])):
         if max(abs(std[k]), abs(t.budget.get(k, 0.0))) >= 5e-4:
-            lines.append(f"    {printable(budget_label(k))}: {t.budget.get(k, 0.0):+.3f} % / {std[k]:+.3f} %")
+            lines.append(f"    {printable(budget_label(k))}: {signed_fixed(t.budget.get(k, 0.0))} % / {signed_fixed(std[k])} %")
     return lines
 
 
 def _cmd_check(a) -> int:
     """Every file is checked and reported (ok on stdout, each error on its own line on stderr); 2 if any is bad."""
+    from .findings import count
     from .scenario import load
     bad = 0
     for p in a.scenarios:
@@ -455,7 +459,7 @@ def _cmd_check(a) -> int:
             print(f"{PROG}: error: {printable(str(exc))}", file=sys.stderr)
             continue
         print(f"{printable(p)}: ok ({printable(sc.name)}; analyte {printable(sc.analyte_label)}; "
-              f"{len(sc.sample.interferents)} interferents)")
+              f"{count(len(sc.sample.interferents), 'interferent')})")
     return 2 if bad else 0
 
 
@@ -475,7 +479,7 @@ def _cmd_batch(a) -> int:
     _solver_ready()
     rows = run_batch(paths, Path(a.out), jobs=jobs, seed=seed, progress=True, report_format=a.format)
     for r in rows:
-        print(f"{r.status.upper():<9} {printable(r.name)}: {printable(r.method if r.ok else r.message)}")
+        print(f"{r.status.upper():<9} {printable(r.name)}: {printable(r.method if r.ok else r.message)} ({r.seconds:.1f} s)")
     print(f"index: {printable(str(Path(a.out) / 'index.html'))}")
     print(f"summary: {printable(str(Path(a.out) / 'summary.csv'))}")
     return 0 if all(r.status == "ok" for r in rows) else 1
