@@ -25,6 +25,7 @@ from .procedure import BenchMethod, bench_method
 from .objectives import COTITRATED_SHARE_MAX, PH_DRIFT_MAX, READABLE_DROPS
 from .readout import CATEGORIES, DROP_mL, budget_label
 from .reagents import HAZARD_NAMES, catalogue
+from .report.text import short_name
 from .scenario import Scenario
 from .search import Evaluation, SearchResult
 from .strategies import strategy
@@ -288,7 +289,9 @@ def _difference_in_bench(e: Evaluation, rec: Evaluation) -> list[str]:
         parts.append(f"hazard {HAZARD_NAMES[e.hazard]} instead of {HAZARD_NAMES[rec.hazard]}")
     extra = len(e.candidate.masking) - len(rec.candidate.masking)
     if extra:
-        parts.append(f"{'one more' if extra == 1 else 'one fewer' if extra == -1 else str(extra)} masking agent")
+        n = abs(extra)
+        parts.append(f"{'one' if n == 1 else 'two' if n == 2 else n} {'more' if extra > 0 else 'fewer'} masking "
+                     f"agent{'' if n == 1 else 's'}")
     if e.violations:
         parts.append("not feasible: " + "; ".join(e.violations))
     return parts
@@ -323,9 +326,9 @@ def alternatives(result: SearchResult) -> tuple[AlternativeRow, ...]:
                 e = rec  # scored again on the finer curve: the same numbers as the headline
             c = e.candidate
             rows.append(AlternativeRow(
-                strategy=strat, pH=c.pH, buffer=cat.buffer(c.buffer).name, titrant=c.titrant,
-                masking=", ".join(f"{cat.masking_agent(a).name} {d * 1000:.3g} mmol/L" for a, d in c.masking),
-                indicator=cat.indicator(c.indicator).name, mode=_mode_text(c), error=e.standardised_error_percent,
+                strategy=strat, pH=c.pH, buffer=short_name(cat.buffer(c.buffer).name), titrant=c.titrant,
+                masking=", ".join(f"{short_name(cat.masking_agent(a).name)} {d * 1000:.3g} mmol/L" for a, d in c.masking),
+                indicator=short_name(cat.indicator(c.indicator).name), mode=_mode_text(c), error=e.standardised_error_percent,
                 margin=e.margin, sharpness=e.sharpness_mL, hazard=HAZARD_NAMES[e.hazard], tradeoff=tradeoff(e, rec)))
     return tuple(rows)
 

@@ -17,6 +17,7 @@ from .equilibrium import warm_up
 from .errors import OptimiserError, printable
 from .reagents import HAZARD_NAMES
 from .report import DEFAULT_FORMAT, report_base
+from .report.text import short_name
 from .results import dumps, to_json, write_together
 
 
@@ -42,16 +43,6 @@ class BatchRow:
     def status(self) -> str:
         """"ok" (a method meets the criteria), "no method" (the run worked, nothing meets them), or "failed"."""
         return "failed" if not self.ok else "ok" if self.meets_criteria else "no method"
-
-
-def short_name(name: str) -> str:
-    """A catalogue display name without its parenthesis, for one-line tables: "Murexide (ammonium purpurate)" ->
-    "Murexide", "cyanide (as KCN)" -> "cyanide".
-
-    >>> short_name("nitric acid (pH set with HNO3 / NaOH; no complexing buffer)"), short_name("Xylenol orange")
-    ('nitric acid', 'Xylenol orange')
-    """
-    return name.split(" (", 1)[0]
 
 
 def method_text(method: Any) -> str:

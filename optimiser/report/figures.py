@@ -84,9 +84,13 @@ def pareto_figure(analysis: Analysis) -> str:
     F = np.array([a.evaluation.F for a in result.front]) if result.front else np.zeros((0, len(objs)))
     pairs = [(objs[0], o) for o in objs[1:]] if len(objs) > 1 else [(objs[0], objs[0])]
     n = len(pairs)
-    fig, axes = plt.subplots(1, n, figsize=(2.6 * n, 2.6), squeeze=False)
+    cols = min(n, 2)  # a grid of two columns: a row of four panels would be a strip too low to read on a phone
+    rows = -(-n // cols)
+    fig, axes = plt.subplots(rows, cols, figsize=(3.2 * cols, 2.6 * rows), squeeze=False)
+    for ax in axes.flat[n:]:
+        ax.set_visible(False)
     strategies = sorted({a.strategy for a in result.front})
-    for ax, (a, b) in zip(axes[0], pairs):
+    for ax, (a, b) in zip(axes.flat, pairs):
         ia, ib = objs.index(a), objs.index(b)
         for k, strat in enumerate(strategies):
             sel = [j for j, alt in enumerate(result.front) if alt.strategy == strat]

@@ -10,7 +10,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from .. import __version__
-from .text import fmt, pH_text, range_text, share_percent, signed
+from .text import fmt, pH_text, range_text, share_percent, signed, signed_fixed
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..analysis import Analysis
@@ -23,7 +23,8 @@ def _env():
     import jinja2  # loaded when a page is rendered, not when the command line is parsed
     loader = jinja2.FunctionLoader(lambda name: resources.files("optimiser.report").joinpath(name).read_text(encoding="utf-8"))
     env = jinja2.Environment(loader=loader, autoescape=True, undefined=jinja2.StrictUndefined)
-    env.globals.update(fmt=fmt, signed=signed, range_text=range_text, pH_text=pH_text, share_percent=share_percent)
+    env.globals.update(fmt=fmt, signed=signed, range_text=range_text, pH_text=pH_text, share_percent=share_percent,
+                       signed_fixed=signed_fixed)
     return env
 
 

@@ -60,3 +60,13 @@ def pH_text(pH: float) -> str:
     ('4', '10.12', '10.10')
     """
     return f"{pH:.0f}" if float(pH).is_integer() else f"{pH:.2f}"
+
+
+def short_name(name: str) -> str:
+    """A catalogue display name without its parenthesis, for one-line tables: "Murexide (ammonium purpurate)" ->
+    "Murexide", "cyanide (as KCN)" -> "cyanide".
+
+    >>> short_name("nitric acid (pH set with HNO3 / NaOH; no complexing buffer)"), short_name("Xylenol orange")
+    ('nitric acid', 'Xylenol orange')
+    """
+    return name.split(" (", 1)[0]
