@@ -216,3 +216,33 @@ def test_run_format_option_lists_the_formats(capsys):
     for command in ("run", "batch"):
         help_text = sub[command].format_help()
         assert "--format FORMAT" in help_text and "report format: html (default html)" in help_text
+
+
+def test_every_option_has_help_and_the_help_lists_the_allowed_names_from_the_registries():
+    """Each subcommand's --help: text for every option and argument; the names from the data and registries (a new
+    titrant, strategy or format appears with no change to the command line's code)."""
+    import argparse
+
+    from optimiser.cli import build_parser
+    from optimiser.objectives import OBJECTIVES
+    from optimiser.reagents import catalogue
+    from optimiser.report import FORMATS
+    from optimiser.strategies import strategy_ids
+    parser = build_parser()
+    subs = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction)).choices
+    assert set(subs) == {"conditional", "constants", "simulate", "run", "check", "batch"}
+    texts = {}
+    for name, sub in subs.items():
+        texts[name] = " ".join(sub.format_help().split())  # unwrapped
+        for action in sub._actions:
+            assert action.help and "{" not in action.help, (name, action.dest)
+    cat = catalogue()
+    for name in ("run", "batch", "check"):
+        for ids in (cat.titrants, cat.buffers, cat.masking, cat.indicators, cat.standards, strategy_ids(),
+                    [o if isinstance(o, str) else o.name for o in OBJECTIVES]):
+            assert all(i in texts[name] for i in ids), (name, list(ids))
+    for name in ("run", "batch"):
+        assert all(f in texts[name] for f in FORMATS)
+    assert all(i in texts["simulate"] for i in [*cat.titrants, *cat.indicators, *cat.masking, *cat.buffers,
+                                                 *strategy_ids(), *cat.standards])
+    assert "Fe(III)" in texts["conditional"] and "Fe(III)" in texts["constants"]
