@@ -25,7 +25,7 @@ from .procedure import BenchMethod, bench_method
 from .objectives import COTITRATED_SHARE_MAX, PH_DRIFT_MAX, READABLE_DROPS
 from .readout import CATEGORIES, DROP_mL, budget_label
 from .reagents import HAZARD_NAMES, catalogue
-from .report.text import short_name
+from .report.text import share_percent, short_name
 from .scenario import Scenario
 from .search import Evaluation, SearchResult
 from .strategies import strategy
@@ -214,7 +214,7 @@ def criteria(scenario: Scenario, e: Evaluation, t: Titration) -> tuple[Criterion
                   bool(t.budget) and -t.budget["analyte_unbound"] <= target),
         Criterion("Share of each interferent titrated at the end point (our own threshold, where its part exceeds "
                   "a tenth of the target)", f"<= {100 * COTITRATED_SHARE_MAX:g} %",
-                  ", ".join(f"{m} {_fmt(100 * v)} %" for m, v in t.cotitrated.items()) or "no interferent",
+                  ", ".join(f"{m} {share_percent(100 * v)} %" for m, v in t.cotitrated.items()) or "no interferent",
                   not [m for m, v in t.cotitrated.items()
                        if v > COTITRATED_SHARE_MAX and abs(t.budget.get(f"cotitration:{m}", 0.0)) > 0.1 * target]),
         Criterion("pH held up to the end point (pH free, buffer capacity)", f"|drift| <= {PH_DRIFT_MAX:g}",
