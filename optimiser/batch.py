@@ -126,8 +126,8 @@ def index_html(rows: list[BatchRow]) -> str:
         status = r.status
         data = f'<a href="{e(r.json)}">json</a>' if r.json else ""
         body.append(f"<tr class='{status.replace(' ', '-')}'><td>{link}</td><td>{e(r.analyte)}</td><td>{status}</td>"
-                    f"<td>{e(r.method)}</td><td>{e(r.strategy)}</td><td class='n'>{_signed(r.error_percent)}</td>"
-                    f"<td>{e(r.largest_part)}</td><td class='n'>{_fmt(r.margin)}</td><td>{e(r.hazard)}</td>"
+                    f"<td class='m'>{e(r.method)}</td><td>{e(r.strategy)}</td><td class='n'>{_signed(r.error_percent)}</td>"
+                    f"<td class='largest'>{e(r.largest_part)}</td><td class='n'>{_fmt(r.margin)}</td><td>{e(r.hazard)}</td>"
                     f"<td>{e(r.message)}</td><td>{data}</td><td>{e(r.source)}</td></tr>")
     return f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8"><meta name="viewport" content="width=device-width, initial-scale=1">
@@ -138,6 +138,7 @@ body {{ font: 14px/1.45 "Segoe UI", Arial, sans-serif; margin: 24px; color: #1d2
 table {{ border-collapse: collapse; width: 100%; }} th, td {{ border-bottom: 1px solid #d5d9e0; padding: 4px 6px; text-align: left; vertical-align: top; }}
 th {{ background: #f4f6f9; }} td.n {{ text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }}
 tr.failed td, tr.no-method td {{ background: #fdf1f0; }} h1 {{ font-size: 1.4em; }}
+td.m {{ min-width: 18em; }} td.largest {{ min-width: 10em; }}
 </style></head><body>
 <h1>Titration methods: {len(rows)} scenarios compared</h1>
 <p>{sum(r.status == "ok" for r in rows)} with a method that meets the criteria, {sum(r.status == "no method" for r in rows)}
