@@ -27,6 +27,7 @@ from .procedure import BenchMethod, bench_method
 from .objectives import COTITRATED_SHARE_MAX, PH_DRIFT_MAX, READABLE_DROPS
 from .readout import CATEGORIES, DROP_mL, budget_label
 from .reagents import HAZARD_NAMES, catalogue
+from .report.text import share_percent, short_name
 from .scenario import Scenario
 from .search import Evaluation, SearchResult
 from .search_stats import SearchStats
@@ -83,7 +84,7 @@ class AlternativeRow:
     masking: str
     indicator: str
     mode: str
-    error: float | None
+    error: float | None  # after standardisation [%], as the headline
     margin: float | None
     sharpness: float | None
     hazard: str
@@ -226,7 +227,7 @@ def criteria(scenario: Scenario, e: Evaluation, t: Titration) -> tuple[Criterion
                   bool(t.budget) and -t.budget["analyte_unbound"] <= target),
         Criterion("Share of each interferent titrated at the end point (our own threshold, where its part exceeds "
                   "a tenth of the target)", f"<= {100 * COTITRATED_SHARE_MAX:g} %",
-                  ", ".join(f"{m} {_fmt(100 * v)} %" for m, v in t.cotitrated.items()) or "no interferent",
+                  ", ".join(f"{m} {share_percent(100 * v)} %" for m, v in t.cotitrated.items()) or "no interferent",
                   not [m for m, v in t.cotitrated.items()
                        if v > COTITRATED_SHARE_MAX and abs(t.budget.get(f"cotitration:{m}", 0.0)) > 0.1 * target]),
         Criterion("pH held up to the end point (pH free, buffer capacity)", f"|drift| <= {PH_DRIFT_MAX:g}",
@@ -284,8 +285,9 @@ def log_K_table(result: SearchResult) -> LogKTable:
 
 def _difference_in_figures(e: Evaluation, rec: Evaluation) -> list[str]:
     parts = []
-    if e.error_percent is not None and rec.error_percent is not None:
-        d = abs(e.error_percent) - abs(rec.error_percent)
+    e_err, rec_err = e.standardised_error_percent, rec.standardised_error_percent  # as the table shows them
+    if e_err is not None and rec_err is not None:
+        d = abs(e_err) - abs(rec_err)
         parts.append(f"{'smaller' if d < 0 else 'larger'} error by {abs(d):.2g} %")
     if e.margin is not None and rec.margin is not None and abs(e.margin - rec.margin) > 0.05:
         parts.append(f"margin {'+' if e.margin > rec.margin else ''}{e.margin - rec.margin:.1f} log units")
@@ -300,7 +302,9 @@ def _difference_in_bench(e: Evaluation, rec: Evaluation) -> list[str]:
         parts.append(f"hazard {HAZARD_NAMES[e.hazard]} instead of {HAZARD_NAMES[rec.hazard]}")
     extra = len(e.candidate.masking) - len(rec.candidate.masking)
     if extra:
-        parts.append(f"{'one more' if extra == 1 else 'one fewer' if extra == -1 else str(extra)} masking agent")
+        n = abs(extra)
+        parts.append(f"{'one' if n == 1 else 'two' if n == 2 else n} {'more' if extra > 0 else 'fewer'} masking "
+                     f"agent{'' if n == 1 else 's'}")
     if e.violations:
         parts.append("not feasible: " + "; ".join(e.violations))
     return parts
@@ -327,15 +331,18 @@ def alternatives(result: SearchResult) -> tuple[AlternativeRow, ...]:
     by_strategy: dict[str, list[Evaluation]] = {}
     for a in result.front:
         by_strategy.setdefault(a.strategy, []).append(a.evaluation)
+    cat = catalogue()
     rows = []
     for strat, evals in sorted(by_strategy.items()):
         for e in sorted(evals, key=lambda e: e.F)[:ALTERNATIVES_PER_STRATEGY]:
+            if rec is not None and e.candidate == rec.candidate:
+                e = rec  # scored again on the finer curve: the same numbers as the headline
             c = e.candidate
             rows.append(AlternativeRow(
-                strategy=strat, pH=c.pH, buffer=c.buffer, titrant=c.titrant,
-                masking=", ".join(f"{a} {d * 1000:.3g} mM" for a, d in c.masking), indicator=c.indicator,
-                mode=_mode_text(c), error=e.error_percent, margin=e.margin, sharpness=e.sharpness_mL,
-                hazard=HAZARD_NAMES[e.hazard], tradeoff=tradeoff(e, rec)))
+                strategy=strat, pH=c.pH, buffer=short_name(cat.buffer(c.buffer).name), titrant=c.titrant,
+                masking=", ".join(f"{short_name(cat.masking_agent(a).name)} {d * 1000:.3g} mmol/L" for a, d in c.masking),
+                indicator=short_name(cat.indicator(c.indicator).name), mode=_mode_text(c), error=e.standardised_error_percent,
+                margin=e.margin, sharpness=e.sharpness_mL, hazard=HAZARD_NAMES[e.hazard], tradeoff=tradeoff(e, rec)))
     return tuple(rows)
 
 
@@ -476,6 +483,37 @@ def _titration_facts(sc: Scenario, t: Titration | None) -> dict[str, Any]:
         "mass_balance_error": t.mass_balance_error, "curve_points": len(t.volume_mL)}
 
 
+class _EchoDumper(yaml.SafeDumper):
+    """Writes text that spans lines as a literal block (``|``) and never folds a long line, so the echoed scenario
+    reads as it was written (no quoted text broken over lines, no stray closing quote)."""
+
+
+def _text(dumper: yaml.SafeDumper, value: str) -> yaml.ScalarNode:
+    block = "\n" in value.rstrip("\n") or (value.endswith("\n") and value.strip() != "")
+    return dumper.represent_scalar("tag:yaml.org,2002:str", value, style="|" if block else None)
+
+
+def _list(dumper: yaml.SafeDumper, value: list) -> yaml.SequenceNode:
+    flow = all(not isinstance(v, (list, dict)) for v in value)  # [7.0, 13.0] on one line, as scenarios write it
+    return dumper.represent_sequence("tag:yaml.org,2002:seq", value, flow_style=flow)
+
+
+_EchoDumper.add_representer(str, _text)
+_EchoDumper.add_representer(list, _list)
+
+
+def scenario_yaml(as_read: Any) -> str:
+    """The scenario as read, written back as YAML for the report.
+
+    >>> print(scenario_yaml({"name": "w", "description": "Two words,\\nand a line.\\n"}), end="")
+    name: w
+    description: |
+      Two words,
+      and a line.
+    """
+    return yaml.dump(dict(as_read), Dumper=_EchoDumper, sort_keys=False, allow_unicode=True, width=10_000)
+
+
 def analyse(result: SearchResult) -> Analysis:
     """Everything the report shows, computed once from the search result."""
     sc, e, t = result.scenario, result.recommended, result.recommended_titration
@@ -493,7 +531,7 @@ def analyse(result: SearchResult) -> Analysis:
         alternatives=alternatives(result), categories=CATEGORIES, safety=cautions,
         constants=constants, robustness_edges=robustness_edges(result),
         robust_pH=tuple(result.robust_pH) if result.robust_pH else None, robust_dose=dict(result.robust_dose),
-        scenario_text=yaml.safe_dump(dict(sc.as_read), sort_keys=False, allow_unicode=True),
+        scenario_text=scenario_yaml(sc.as_read),
         comparison=comparison_table(result), listed_safety=listed_safety(result, cautions),
         search_stats=getattr(result, "stats", None),
         **_titration_facts(sc, t))

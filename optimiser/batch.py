@@ -17,8 +17,8 @@ from .equilibrium import warm_up
 from .errors import OptimiserError, printable
 from .reagents import HAZARD_NAMES
 from .report import DEFAULT_FORMAT, report_base
+from .report.text import short_name
 from .results import dumps, to_json, write_together
-from .strategies import strategy
 
 
 @dataclass(frozen=True)
@@ -28,14 +28,16 @@ class BatchRow:
     ok: bool
     html: str = ""
     json: str = ""
-    method: str = ""
+    method: str = ""  # the method in one line, readable names and doses (:func:`method_text`)
     error_percent: float | None = None
     margin: float | None = None
     hazard: str = ""
     message: str = ""
-    seconds: float = 0.0
+    seconds: float = 0.0  # printed by the command, never written to a file (identical runs, identical files)
     meets_criteria: bool = False
     largest_part: str = ""  # the error budget's largest part after standardisation, worded
+    strategy: str = ""  # the strategy the method stands for ("masking", "pH control", ...)
+    analyte: str = ""
 
     @property
     def status(self) -> str:
@@ -43,12 +45,31 @@ class BatchRow:
         return "failed" if not self.ok else "ok" if self.meets_criteria else "no method"
 
 
-def method_text(candidate: Any) -> str:
-    """One line naming a recommended method (titrant, pH, buffer, indicator, masking, and its standard if any)."""
-    s = strategy(candidate.mode)
-    return (f"{candidate.titrant}, pH {candidate.pH:.2f} ({candidate.buffer}), {candidate.indicator}"
-            + (f", masking {', '.join(a for a, _ in candidate.masking)}" if candidate.masking else "")
-            + (f", {s.describe(candidate)}" if s.uses_standard else ""))
+def method_text(method: Any) -> str:
+    """One line naming a method by the catalogue's display names, with its doses: titrant and its concentration, pH,
+    buffer and its total, indicator, masking agents and their concentrations in the aliquot, and the strategy's own
+    words where it needs a standard. ``method`` is an :class:`optimiser.method.Method`."""
+    s = method.strategy
+    buf = method.buffer_info
+    buffer = short_name(buf.name) + (f" {method.buffer_total_M:.2g} mol/L" if buf.ligand and method.buffer_total_M else "")
+    masking = [f"{short_name(a.name)} {d * 1000:.2g} mmol/L" for a, (_, d) in zip(method.masking_agents, method.masking,
+                                                                                   strict=True)]
+    return (f"{method.titrant} {method.titrant_conc_M:g} mol/L, pH {method.pH:.2f} ({buffer}), "
+            f"{short_name(method.indicator_info.name)}"
+            + (f", masking {', '.join(masking)}" if masking else "")
+            + (f", {s.describe(method)}" if s.uses_standard else ""))
+
+
+def largest_part_text(t: Any) -> str:
+    """The budget's largest part after standardisation in words, or that every part rounds to zero."""
+    from .readout import budget_label
+    from .report.text import signed_fixed
+    if t is None or t.largest_part is None:
+        return ""
+    key, part = t.largest_part
+    if signed_fixed(part) == "0.000":
+        return "every part below 0.0005 %"
+    return f"{budget_label(key)} {signed_fixed(part)} %"
 
 
 def run_one(path: str, out_dir: str, seed: int, base: str | None = None,
@@ -58,6 +79,7 @@ def run_one(path: str, out_dir: str, seed: int, base: str | None = None,
 
     from . import report
     from .analysis import analyse
+    from .decision import strategy_of
     from .scenario import load
     from .search import run_search
     t0 = time.perf_counter()
@@ -68,16 +90,17 @@ def run_one(path: str, out_dir: str, seed: int, base: str | None = None,
         result = run_search(sc, seed=seed)
         report_path, json_path = report.write(result, Path(out_dir), dumps(to_json(result)), base=base,
                                               report_format=report_format, analysis=analyse(result))
-        e = result.recommended
-        if e is None:
-            return BatchRow(path, name, True, report_path.name, json_path.name, "no method meets the criteria",
-                            message="no method meets the criteria; none can even be run", seconds=time.perf_counter() - t0)
-        return BatchRow(path, name, True, report_path.name, json_path.name,
-                        ("" if result.meets_criteria else "closest compromise, not to follow: ") + method_text(e.candidate),
-                        e.standardised_error_percent, e.margin, HAZARD_NAMES[e.hazard],
-                        message="" if result.meets_criteria else "no method meets the criteria",
+        e, t = result.recommended, result.recommended_titration
+        files = {"html": report_path.name, "json": json_path.name, "analyte": sc.analyte_label}
+        if e is None or t is None:
+            return BatchRow(path, name, True, method="no method meets the criteria",
+                            message="no method meets the criteria; none can even be run", seconds=time.perf_counter() - t0,
+                            **files)
+        return BatchRow(path, name, True, method=("" if result.meets_criteria else "closest compromise, not to follow: ")
+                        + method_text(t.method), error_percent=e.standardised_error_percent, margin=e.margin,
+                        hazard=HAZARD_NAMES[e.hazard], message="" if result.meets_criteria else "no method meets the criteria",
                         seconds=time.perf_counter() - t0, meets_criteria=result.meets_criteria,
-                        largest_part=_largest_part(result.recommended_titration))
+                        largest_part=largest_part_text(t), strategy=strategy_of(e), **files)
     except OptimiserError as exc:
         return BatchRow(path, name, False, message=str(exc), seconds=time.perf_counter() - t0)
     except Exception as exc:  # a bug must not stop the other scenarios; it is reported with its type
@@ -85,16 +108,13 @@ def run_one(path: str, out_dir: str, seed: int, base: str | None = None,
         return BatchRow(path, name, False, message=f"internal error: {tb}", seconds=time.perf_counter() - t0)
 
 
-def _largest_part(t: Any) -> str:
-    from .readout import budget_label
-    if t is None or t.largest_part is None:
-        return ""
-    key, part = t.largest_part
-    return f"{budget_label(key)} {part:+.3f} %"
-
-
 def _fmt(x, nd=2) -> str:
     return "" if x is None else f"{x:.{nd}f}"
+
+
+def _signed(x) -> str:
+    from .report.text import signed_fixed
+    return "" if x is None else signed_fixed(x, 3)
 
 
 def index_html(rows: list[BatchRow]) -> str:
@@ -106,36 +126,45 @@ def index_html(rows: list[BatchRow]) -> str:
         link = f'<a href="{e(r.html)}">{e(r.name)}</a>' if r.ok and r.html else e(r.name)
         status = r.status
         data = f'<a href="{e(r.json)}">json</a>' if r.json else ""
-        body.append(f"<tr class='{status.replace(' ', '-')}'><td>{link}</td><td>{e(r.method)}</td><td class='n'>{_fmt(r.error_percent, 3)}</td>"
-                    f"<td>{e(r.largest_part)}</td><td class='n'>{_fmt(r.margin)}</td><td>{e(r.hazard)}</td><td>{status}</td><td>{e(r.message)}</td>"
-                    f"<td>{data}</td><td>{e(r.source)}</td></tr>")
+        body.append(f"<tr class='{status.replace(' ', '-')}'><td>{link}</td><td>{e(r.analyte)}</td><td>{status}</td>"
+                    f"<td class='m'>{e(r.method)}</td><td>{e(r.strategy)}</td><td class='n'>{_signed(r.error_percent)}</td>"
+                    f"<td class='largest'>{e(r.largest_part)}</td><td class='n'>{_fmt(r.margin)}</td><td>{e(r.hazard)}</td>"
+                    f"<td>{e(r.message)}</td><td>{data}</td><td>{e(r.source)}</td></tr>")
     return f"""<!DOCTYPE html>
-<html lang="en"><head><meta charset="utf-8"><title>Titration methods: batch comparison</title>
+<html lang="en"><head><meta charset="utf-8"><meta name="viewport" content="width=device-width, initial-scale=1">
+<title>Titration methods: batch comparison</title>
 <style>
 body {{ font: 14px/1.45 "Segoe UI", Arial, sans-serif; margin: 24px; color: #1d2433; }}
-table {{ border-collapse: collapse; width: 100%; }} th, td {{ border-bottom: 1px solid #d5d9e0; padding: 4px 6px; text-align: left; }}
-th {{ background: #f4f6f9; }} td.n {{ text-align: right; font-variant-numeric: tabular-nums; }}
+.table-scroll {{ max-width: 100%; overflow-x: auto; }}
+table {{ border-collapse: collapse; width: 100%; }} th, td {{ border-bottom: 1px solid #d5d9e0; padding: 4px 6px; text-align: left; vertical-align: top; }}
+th {{ background: #f4f6f9; }} td.n {{ text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }}
 tr.failed td, tr.no-method td {{ background: #fdf1f0; }} h1 {{ font-size: 1.4em; }}
+td.m {{ min-width: 18em; }} td.largest {{ min-width: 10em; }}
 </style></head><body>
 <h1>Titration methods: {len(rows)} scenarios compared</h1>
 <p>{sum(r.status == "ok" for r in rows)} with a method that meets the criteria, {sum(r.status == "no method" for r in rows)}
-where no method meets them, {sum(not r.ok for r in rows)} failed. Error: predicted titration error of the recommended
-method after standardisation (%); largest part: the largest cause of that error; margin: selectivity margin delta log(cK') over the strongest interferent left in solution (blank: none left).</p>
-<table><tr><th>Scenario</th><th>Recommended method</th><th>Error / %</th><th>Largest part</th><th>Margin</th><th>Hazard</th><th>Status</th><th>Message</th><th>Data</th><th>File</th></tr>
+where no method meets them ("no method": the method shown is the closest compromise, not to follow),
+{sum(not r.ok for r in rows)} failed. Method: titrant and its concentration, pH, buffer and its total, indicator, masking
+agents and their concentrations in the aliquot. Error: predicted titration error after standardisation (%); largest
+part: the largest cause of that error; margin: selectivity margin delta log(cK') over the strongest interferent left in
+solution (blank: none left).</p>
+<div class="table-scroll"><table><tr><th>Scenario</th><th>Analyte</th><th>Status</th><th>Recommended method</th><th>Strategy</th>
+<th>Error / %</th><th>Largest part</th><th>Margin</th><th>Hazard</th><th>Message</th><th>Data</th><th>Scenario file</th></tr>
 {''.join(body)}
-</table></body></html>
+</table></div></body></html>
 """
 
 
 def summary_csv(rows: list[BatchRow]) -> str:
+    """One row per scenario; no timings (identical runs write identical files)."""
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["scenario", "source", "status", "recommended_method", "standardised_error_percent", "largest_error_part",
-                "selectivity_margin_log", "hazard", "report", "json", "message", "seconds"])
+    w.writerow(["scenario", "source", "analyte", "status", "recommended_method", "strategy", "standardised_error_percent",
+                "largest_error_part", "selectivity_margin_log", "hazard", "report", "json", "message"])
     for r in rows:
-        w.writerow([printable(r.name), printable(r.source), r.status, r.method, _fmt(r.error_percent, 4),
-                    printable(r.largest_part), _fmt(r.margin, 3), r.hazard, r.html, r.json, printable(r.message),
-                    f"{r.seconds:.2f}"])
+        w.writerow([printable(r.name), printable(r.source), printable(r.analyte), r.status, printable(r.method), r.strategy,
+                    _fmt(r.error_percent, 4), printable(r.largest_part), _fmt(r.margin, 3), r.hazard, r.html, r.json,
+                    printable(r.message)])
     return buf.getvalue()
 
 
@@ -147,11 +176,17 @@ def _progress(done: int, total: int, name: str) -> None:
 
 
 def _unique_bases(paths: list[Path]) -> list[str]:
-    """Report names after the scenario files, made unique within the batch (name, name-2, ...; the naming rule of
-    :func:`optimiser.report.report_base`)."""
+    """Each scenario's file base name by the one naming rule of ``run`` and ``batch``: the scenario's ``name``
+    (:func:`optimiser.report.report_base`), with ``-2``, ``-3``, ... for a name already taken earlier in the batch
+    (input order). A file that cannot be read keeps its file name here (it writes no report; its row says why)."""
+    from .scenario import load
     bases: list[str] = []
     for p in paths:
-        bases.append(report_base(Path(p).stem, bases))
+        try:
+            name = load(p).name
+        except (OptimiserError, OSError):
+            name = Path(p).stem
+        bases.append(report_base(name, bases))
     return bases
 
 

@@ -25,6 +25,39 @@ class _Parser(argparse.ArgumentParser):
     def error(self, message: str):  # one line, exit status 2, through main's handler
         raise InputError(f"{message} (see '{self.prog} --help')")
 
+    def format_help(self) -> str:
+        """The help, with the names the data and the registries allow filled in (``{titrants}``, ``{modes}``, ...):
+        read only when help is asked for, so that a plain command does not load the catalogue to parse its options."""
+        names = allowed_names()
+        for action in self._actions:
+            if action.help and "{" in action.help:
+                action.help = action.help.format(**names)
+        if self.epilog and "{" in self.epilog:
+            self.epilog = self.epilog.format(**names)
+        return super().format_help()
+
+
+def allowed_names() -> dict[str, str]:
+    """Every list of names a command or a scenario accepts, from the data and the registries (comma-separated)."""
+    from .constants import database
+    from .objectives import OBJECTIVES
+    from .reagents import HAZARD_NAMES, catalogue
+    from .report import FORMATS
+    cat, db = catalogue(), database()
+
+    def join(names) -> str:
+        return ", ".join(names)
+    return {"metals": join(m for m, r in db.metals.items() if not r.get("internal")), "titrants": join(cat.titrants),
+            "buffers": join(cat.buffers), "masking": join(cat.masking), "indicators": join(cat.indicators),
+            "standards": join(cat.standards), "modes": join(strategy_ids()), "formats": join(FORMATS),
+            "objectives": join(o if isinstance(o, str) else o.name for o in OBJECTIVES),
+            "hazards": join(HAZARD_NAMES)}
+
+
+SCENARIO_NAMES = ("names a scenario file may use (any case, or an alias the data holds): metals {metals}; titrants "
+                  "{titrants}; buffers {buffers}; masking agents {masking}; indicators {indicators}; modes {modes}; "
+                  "back-titration standards {standards}; max_hazard {hazards}; targets.weights {objectives}.")
+
 
 # A concentration on the command line, as in a scenario's reagent concentrations: a bare number is mol/L.
 CONC_HELP = "a bare number is mol/L; or with a unit: 0.1M, 10 mM, 5 g/L"
@@ -65,62 +98,85 @@ def _integer(text: str, what: str, lo: int, hi: int) -> int:
 def _format_option(parser: argparse.ArgumentParser) -> None:
     from .report import DEFAULT_FORMAT, FORMATS
     parser.add_argument("--format", action="append", metavar="FORMAT",
-                        help=f"report format: {', '.join(FORMATS)} (default {DEFAULT_FORMAT}); several as html,md,pdf "
-                             "or by repeating the option; html is the full report, md and pdf the method as a "
-                             "laboratory method document; the JSON result is always written beside them")
+                        help="report format: {formats} (default " + DEFAULT_FORMAT + "); several as html,md,pdf or by "
+                             "repeating the option; html is the full report, md and pdf the method as a laboratory "
+                             "method document; the JSON result is always written beside them")
+
+
+SEED_HELP = "seed of the search, a whole number from 0 to 2**31-1 (default %(default)s): the same seed, the same result"
+OUT_HELP = ("output folder (default %(default)s; created, and checked writable before the search); files are named "
+            "after the scenario's name")
 
 
 def build_parser() -> argparse.ArgumentParser:
-    p = _Parser(prog=PROG, description="Method-development optimiser for selective complexometric titrations.")
+    p = _Parser(prog=PROG, description="Method-development optimiser for selective complexometric titrations.",
+                epilog=f"'{PROG} COMMAND --help' describes each command and lists the names it accepts.")
     p.add_argument("--version", action="version", version=f"{PROG} {__version__}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
-    c = sub.add_parser("conditional", help="log alpha and conditional constants of a metal across pH")
-    c.add_argument("metal")
-    c.add_argument("--titrant", help="the titrant (default: the first in the data, EDTA)")
-    c.add_argument("--pH", nargs="+", required=True, metavar="PH")
+    c = sub.add_parser("conditional", help="log alpha and conditional constants of a metal across pH",
+                       description="log alpha_Y, log alpha_M, log K and log K' of a metal with a titrant at each pH.")
+    c.add_argument("metal", help="the metal: {metals} (any case or alias: Fe3+, aluminum, ...)")
+    c.add_argument("--titrant", help="the titrant: {titrants}, or any ligand of the data (default: the first, EDTA)")
+    c.add_argument("--pH", nargs="+", required=True, metavar="PH", help="one or more pH values, 0 to 14")
     c.add_argument("--ligand", action="append", default=[], metavar="NAME=CONC",
-                   help=f"total (analytical) ligand concentration, e.g. NH3=0.1M or ammonia=0.1 ({CONC_HELP})")
-    c.add_argument("--ionic-strength", default="0.1", metavar="M", help="mol/L (default 0.1)")
-    c.add_argument("--temperature", default="25", metavar="DEGC", help="degC (default 25); or with K")
+                   help=f"total (analytical) ligand concentration, e.g. NH3=0.1M or ammonia=0.1 ({CONC_HELP}); "
+                        "repeat for several ligands")
+    c.add_argument("--ionic-strength", default="0.1", metavar="M", help="mol/L, 0 to 1 (default %(default)s)")
+    c.add_argument("--temperature", default="25", metavar="DEGC", help="degC, 0 to 90 (default %(default)s); or with K")
     c.add_argument("--complex", metavar="CONC",
                    help=f"total concentration of the complex MY; prints the free metal ({CONC_HELP})")
-    c.add_argument("--pH-scale", default="activity", choices=("activity", "concentration"))
-    c.add_argument("--json", action="store_true")
+    c.add_argument("--pH-scale", default="activity", choices=("activity", "concentration"),
+                   help="what pH means: -log a(H+), as a glass electrode reads it, or -log [H+] (default %(default)s)")
+    c.add_argument("--json", action="store_true", help="print a JSON document instead of the table")
 
-    k = sub.add_parser("constants", help="the constants held for a metal or reagent, with conditions and sources")
-    k.add_argument("name", nargs="?")
-    k.add_argument("--json", action="store_true")
+    k = sub.add_parser("constants", help="the constants held for a metal or reagent, with conditions and sources",
+                       description="Without a name: the catalogue and the number of constants held.")
+    k.add_argument("name", nargs="?", help="a metal ({metals}), a titrant ({titrants}), a buffer ({buffers}), a masking "
+                                           "agent ({masking}), an indicator ({indicators}) or a ligand")
+    k.add_argument("--json", action="store_true", help="print a JSON document instead of the table")
 
-    s = sub.add_parser("simulate", help="evaluate one given method on a scenario")
-    s.add_argument("scenario")
-    s.add_argument("--pH", required=True)
-    s.add_argument("--titrant", required=True)
-    s.add_argument("--indicator", required=True)
+    s = sub.add_parser("simulate", help="evaluate one given method on a scenario",
+                       description="Simulates one method on a scenario's sample: end point, error and its budget, "
+                                   "sharpness, co-titrated interferents, solids, warnings.")
+    s.add_argument("scenario", help="a scenario file (YAML)")
+    s.add_argument("--pH", required=True, help="the method's pH, 0 to 14")
+    s.add_argument("--titrant", required=True, help="the titrant: {titrants}")
+    s.add_argument("--indicator", required=True, help="the indicator: {indicators}")
     s.add_argument("--masking", action="append", default=[], metavar="NAME=CONC",
-                   help=f"a masking agent and its concentration in the aliquot ({CONC_HELP})")
+                   help=f"a masking agent ({{masking}}) and its concentration in the aliquot ({CONC_HELP}); repeat "
+                        "for several")
     s.add_argument("--buffer", metavar="NAME[=CONC]",
-                   help=f"buffer and its total ligand concentration (default: one that holds the pH; {CONC_HELP})")
-    s.add_argument("--mode", default="direct", choices=strategy_ids(), help="how the titration is run")
+                   help=f"buffer ({{buffers}}) and its total ligand concentration (default: the first that holds the "
+                        f"pH, at its usual total; {CONC_HELP})")
+    s.add_argument("--mode", default="direct", choices=strategy_ids(), metavar="MODE",
+                   help="how the titration is run: {modes} (default %(default)s)")
     s.add_argument("--back-metal", default="Zn", metavar="METAL",
-                   help="the back-titration standard (one of the standards in the data: Zn, Mg)")
-    s.add_argument("--titrant-conc", metavar="M", help=f"override the scenario's titrant concentration ({CONC_HELP})")
-    s.add_argument("--json", action="store_true")
+                   help="the back-titration standard: {standards} (default %(default)s)")
+    s.add_argument("--titrant-conc", metavar="M", help=f"override the scenario's titrant concentration, 0.0001 to 1 M "
+                                                        f"({CONC_HELP})")
+    s.add_argument("--json", action="store_true", help="print a JSON document (with the whole curve) instead of text")
 
-    r = sub.add_parser("run", help="search a scenario (the built-in demo by default) and write its report")
-    r.add_argument("scenario", nargs="?")
-    r.add_argument("--out", default="reports", metavar="DIR", help="output folder (created; checked writable first)")
-    r.add_argument("--seed", default="1", metavar="N", help="a whole number, 0 to 2**31-1 (default 1)")
+    r = sub.add_parser("run", help="search a scenario (the built-in demo by default) and write its report",
+                       description="Searches the methods a scenario allows and writes DIR/<name>.<format> and "
+                                   "DIR/<name>.json, <name> from the scenario's name.", epilog=SCENARIO_NAMES)
+    r.add_argument("scenario", nargs="?", help="a scenario file (YAML); without one, the built-in demo")
+    r.add_argument("--out", default="reports", metavar="DIR", help=OUT_HELP)
+    r.add_argument("--seed", default="1", metavar="N", help=SEED_HELP)
     _format_option(r)
 
-    ch = sub.add_parser("check", help="validate scenario files only (every file reported; exit 2 if any is bad)")
-    ch.add_argument("scenarios", nargs="+", metavar="SCENARIO")
+    ch = sub.add_parser("check", help="validate scenario files only (every file reported; exit 2 if any is bad)",
+                        epilog=SCENARIO_NAMES)
+    ch.add_argument("scenarios", nargs="+", metavar="SCENARIO", help="one or more scenario files (YAML)")
 
-    b = sub.add_parser("batch", help="run every scenario in files and folders, in parallel")
-    b.add_argument("paths", nargs="+", metavar="PATH")
-    b.add_argument("--out", default="reports", metavar="DIR", help="output folder (created; checked writable first)")
+    b = sub.add_parser("batch", help="run every scenario in files and folders, in parallel",
+                       description="Runs every scenario (*.yaml, *.yml) in the files and folders given, writes each "
+                                   "report and JSON (named as 'run' names them, -2, -3, ... for a name used twice), "
+                                   "index.html comparing them and summary.csv.", epilog=SCENARIO_NAMES)
+    b.add_argument("paths", nargs="+", metavar="PATH", help="scenario files, or folders searched for *.yaml and *.yml")
+    b.add_argument("--out", default="reports", metavar="DIR", help=OUT_HELP)
     b.add_argument("--jobs", metavar="N", help="worker processes, a whole number 1-256 (default: one per core)")
-    b.add_argument("--seed", default="1", metavar="N", help="a whole number, 0 to 2**31-1 (default 1)")
+    b.add_argument("--seed", default="1", metavar="N", help=SEED_HELP)
     _format_option(b)
     return p
 
@@ -344,12 +400,13 @@ def _method_line(sc, method) -> str:
 
 
 def _endpoint_lines(t) -> list[str]:
-    from .report.text import fmt
+    from .report.text import fmt, signed_fixed
     if t.endpoint_mL is None:
         return ["  end point: none (the indicator does not turn)"]
-    blank = f"  (of which {t.indicator_blank_percent:+.3f} % is analyte held by the indicator)" if t.indicator_blank_percent else ""
+    b = t.indicator_blank_percent
+    blank = f"  (of which {signed_fixed(b)} % is analyte held by the indicator)" if b and signed_fixed(b) != "0.000" else ""
     return [f"  end point:   {t.endpoint_mL:.3f} mL, colour {t.colour_change[0]} -> {t.colour_change[1]}",
-            f"  error:       {t.error_percent:+.3f} %{blank}",
+            f"  error:       {signed_fixed(t.error_percent)} %{blank}",
             f"  sharpness:   {fmt(t.sharpness_mL)} mL ({fmt(t.sharpness_drops)} drops of 0.05 mL)"
             + ("  too gradual" if t.too_gradual else "")]
 
@@ -389,6 +446,7 @@ def _cmd_simulate(a) -> int:
 def _cmd_run(a) -> int:
     from . import report
     from .analysis import analyse
+    from .report.text import signed_fixed
     from .results import dumps, to_json, writable_folder
     from .search import run_search
     from .strategies import strategy
@@ -424,9 +482,9 @@ def _cmd_run(a) -> int:
               + (", ".join(f"{m} {d * 1000:.3g} mM" for m, d in c.masking) or "no masking")
               + f", {strategy(c.mode).describe(c)}")
         t = result.recommended_titration
-        print(f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {t.standardised_error_percent:+.2f} %, sharpness {t.sharpness_mL:.3f} mL, "
-              f"robust pH {result.robust_pH[0]:.2f}-{result.robust_pH[1]:.2f}" if result.robust_pH else
-              f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {t.standardised_error_percent:+.2f} %")
+        print(f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {signed_fixed(t.standardised_error_percent, 2)} %, "
+              f"sharpness {t.sharpness_mL:.3f} mL, robust pH {result.robust_pH[0]:.2f}-{result.robust_pH[1]:.2f}" if result.robust_pH else
+              f"  end point {t.endpoint_mL:.2f} mL, error after standardisation {signed_fixed(t.standardised_error_percent, 2)} %")
         print("\n".join(_budget_lines(t)))
     print("\n".join(_listed_lines(result)))
     for fmt in formats:
@@ -454,19 +512,21 @@ def _listed_lines(result) -> list[str]:
 def _budget_lines(t) -> list[str]:
     """The error budget by cause, as simulated and after standardisation, largest first."""
     from .readout import budget_label
+    from .report.text import signed_fixed
     if not t.budget:
         return []
     std = t.standardised_budget
-    lines = [f"  error after standardisation {t.standardised_error_percent:+.3f} % (as simulated {t.error_percent:+.3f} %); "
-             "by cause, as simulated / after standardisation:"]
+    lines = [f"  error after standardisation {signed_fixed(t.standardised_error_percent)} % (as simulated "
+             f"{signed_fixed(t.error_percent)} %); by cause, as simulated / after standardisation:"]
     for k in sorted(std, key=lambda k: -abs(std[k])):
         if max(abs(std[k]), abs(t.budget.get(k, 0.0))) >= 5e-4:
-            lines.append(f"    {printable(budget_label(k))}: {t.budget.get(k, 0.0):+.3f} % / {std[k]:+.3f} %")
+            lines.append(f"    {printable(budget_label(k))}: {signed_fixed(t.budget.get(k, 0.0))} % / {signed_fixed(std[k])} %")
     return lines
 
 
 def _cmd_check(a) -> int:
     """Every file is checked and reported (ok on stdout, each error on its own line on stderr); 2 if any is bad."""
+    from .findings import count
     from .scenario import load
     bad = 0
     for p in a.scenarios:
@@ -478,7 +538,7 @@ def _cmd_check(a) -> int:
             continue
         listed = f"; {len(sc.methods)} listed method{'s' if len(sc.methods) > 1 else ''}" if sc.methods else ""
         print(f"{printable(p)}: ok ({printable(sc.name)}; analyte {printable(sc.analyte_label)}; "
-              f"{len(sc.sample.interferents)} interferents{listed})")
+              f"{count(len(sc.sample.interferents), 'interferent')}{listed})")
     return 2 if bad else 0
 
 
@@ -500,7 +560,7 @@ def _cmd_batch(a) -> int:
     _solver_ready()
     rows = run_batch(paths, Path(a.out), jobs=jobs, seed=seed, progress=True, report_format=formats)
     for r in rows:
-        print(f"{r.status.upper():<9} {printable(r.name)}: {printable(r.method if r.ok else r.message)}")
+        print(f"{r.status.upper():<9} {printable(r.name)}: {printable(r.method if r.ok else r.message)} ({r.seconds:.1f} s)")
     print(f"index: {printable(str(Path(a.out) / 'index.html'))}")
     print(f"summary: {printable(str(Path(a.out) / 'summary.csv'))}")
     return 0 if all(r.status == "ok" for r in rows) else 1

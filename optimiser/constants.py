@@ -108,9 +108,14 @@ class FormationConstant:
 
     @property
     def reaction(self) -> str:
-        left = " + ".join((f"{nu} " if nu > 1 else "") + c for c, nu in self.stoichiometry.items() if nu > 0)
+        """The reaction written out; each H+ released comes from a water molecule (hydroxo species, solids, Kw):
+        ``Mg + 2 H2O = Mg(OH)2 + 2 H+``, ``H2O = OH- + H+``."""
+        water = -self.stoichiometry.get("H+", 0)
+        left = [(f"{nu} " if nu > 1 else "") + c for c, nu in self.stoichiometry.items() if nu > 0]
+        if water > 0:
+            left.append((f"{water} " if water > 1 else "") + "H2O")
         released = [(f"{-nu} " if nu < -1 else "") + c for c, nu in self.stoichiometry.items() if nu < 0]
-        return left + " = " + self.species + "".join(" + " + r for r in released)
+        return " + ".join(left) + " = " + self.species + "".join(" + " + r for r in released)
 
 
 def davies_A(temperature_C: ArrayLike) -> NDArray[np.float64]:

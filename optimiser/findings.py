@@ -63,6 +63,24 @@ def _join(names: Iterable[str]) -> str:
     return ", ".join(names)
 
 
+def agree(names: Iterable[str] | str, singular: str, plural: str) -> str:
+    """The verb that agrees with a list of names: ``singular`` for one, ``plural`` for several.
+
+    >>> agree(["Mg(OH)2"], "does", "do"), agree(["Mg(OH)2", "Fe(OH)3"], "does", "do")
+    ('does', 'do')
+    """
+    return singular if isinstance(names, str) or len(list(names)) == 1 else plural
+
+
+def count(n: int, noun: str, plural: str | None = None) -> str:
+    """A number with its noun in the right number ("1 interferent", "2 interferents", "0 interferents").
+
+    >>> count(1, "interferent"), count(2, "interferent"), count(2, "analysis", "analyses")
+    ('1 interferent', '2 interferents', '2 analyses')
+    """
+    return f"{n} {noun if n == 1 else plural or noun + 's'}"
+
+
 # One sentence per kind. `v` holds the finding's values.
 WORDING: dict[str, Callable[[Mapping[str, Any]], str]] = {
     # pretreatment (reagents that reduce or mask by a stated assumption)
@@ -79,14 +97,16 @@ WORDING: dict[str, Callable[[Mapping[str, Any]], str]] = {
     "back_excess": lambda v: (f"Back-titration: {v['excess_ratio']:g} times the titrant needed for the metals present "
                               f"({v['excess_mL']:.2f} mL) is added first, then titrated with {v['standard_conc_M']:g} M "
                               f"{v['standard']}."),
-    "slow_heated": lambda v: (f"{_join(v['metals'])} reacts with the titrant only on heating (boil a few minutes after the "
-                              f"excess is added); its complex is then inert and is not displaced by {v['standard']} during "
-                              "the back-titration."),
+    "slow_heated": lambda v: (f"{_join(v['metals'])} {agree(v['metals'], 'reacts', 'react')} with the titrant only on "
+                              "heating (boil a few minutes after the excess is added); "
+                              f"{agree(v['metals'], 'its complex is', 'their complexes are')} then inert and not "
+                              f"displaced by {v['standard']} during the back-titration."),
     "working_temperature": lambda v: (f"Titrated at {v['temperature_C']:g} degC, where {v['indicator']} is read in published "
                                       f"practice (the sample is at {v['sample_C']:g} degC and is warmed to it); constants "
                                       "with no published enthalpy are kept at their own temperature."),
-    "slow_direct": lambda v: (f"{_join(v['metals'])} reacts too slowly with {v['titrant']} at room temperature for a direct "
-                              "titration: use a back-titration (common practice)."),
+    "slow_direct": lambda v: (f"{_join(v['metals'])} {agree(v['metals'], 'reacts', 'react')} too slowly with "
+                              f"{v['titrant']} at room temperature for a direct titration: use a back-titration "
+                              "(common practice)."),
     # read-out
     "indicator_unbound": lambda v: (f"{v['indicator']} is hardly bound by the metals at pH {v['pH']:.2f} "
                                     f"({100 * v['bound']:.0f} % bound): no visible colour change is predicted."),
@@ -103,7 +123,7 @@ WORDING: dict[str, Callable[[Mapping[str, Any]], str]] = {
         "titrant binds it. It forms within minutes and redissolves only slowly as the titrant is added, so the end "
         "point is low or returns (the reason for the water standards' rule to finish within 5 minutes of raising the "
         f"pH). Add about 90 % of the expected titrant before the pH is raised, or first {v['expel']}."),
-    "blocked": lambda v: f"{_join(v['metals'])} block(s) {v['indicator']} at this pH and dose: mask it, or change the method.",
+    "blocked": lambda v: f"{_join(v['metals'])} {agree(v['metals'], 'blocks', 'block')} {v['indicator']} at this pH and dose: mask it, or change the method.",
     "indicator_pH": lambda v: (f"{v['indicator']} shows its colour change only between pH {v['low']:g} and {v['high']:g} "
                                f"(the method's pH is {v['pH']:.2f})."),
     "needs_magnesium": lambda v: (f"{v['indicator']} gives a sharp calcium end point only with magnesium present: add a "

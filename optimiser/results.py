@@ -25,7 +25,7 @@ from .search import Evaluation, SearchResult, strategy_of
 from .strategies import strategy
 from .titration import DROP_mL, Titration
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2  # 2: no wall time (identical runs write identical files)
 
 
 def _r(x: float | None, nd: int = 4) -> float | None:
@@ -95,7 +95,7 @@ def to_json(result: SearchResult) -> dict[str, Any]:
     cc = result.conditional
     return {
         "schema": SCHEMA_VERSION, "scenario": sc.name, "analyte": list(sc.sample.analyte), "seed": result.seed,
-        "evaluations": result.evaluations, "wall_time_s": _r(result.wall_time_s, 2), "objectives": list(result.objectives),
+        "evaluations": result.evaluations, "objectives": list(result.objectives),
         "meets_criteria": result.meets_criteria,
         "recommended": rec if result.meets_criteria else None,  # never a method that fails the criteria
         "closest_compromise": None if result.meets_criteria else rec,

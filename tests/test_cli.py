@@ -2,6 +2,7 @@
 import json
 import re
 from html.parser import HTMLParser
+from pathlib import Path
 
 import pytest
 
@@ -218,3 +219,61 @@ def test_run_format_option_lists_the_formats(capsys):
     for command in ("run", "batch"):
         help_text = sub[command].format_help()
         assert "--format FORMAT" in help_text and "report format: html, md, pdf (default html)" in help_text
+
+
+def test_every_option_has_help_and_the_help_lists_the_allowed_names_from_the_registries():
+    """Each subcommand's --help: text for every option and argument; the names from the data and registries (a new
+    titrant, strategy or format appears with no change to the command line's code)."""
+    import argparse
+
+    from optimiser.cli import build_parser
+    from optimiser.objectives import OBJECTIVES
+    from optimiser.reagents import catalogue
+    from optimiser.report import FORMATS
+    from optimiser.strategies import strategy_ids
+    parser = build_parser()
+    subs = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction)).choices
+    assert set(subs) == {"conditional", "constants", "simulate", "run", "check", "batch"}
+    texts = {}
+    for name, sub in subs.items():
+        texts[name] = " ".join(sub.format_help().split())  # unwrapped
+        for action in sub._actions:
+            assert action.help and "{" not in action.help, (name, action.dest)
+    cat = catalogue()
+    for name in ("run", "batch", "check"):
+        for ids in (cat.titrants, cat.buffers, cat.masking, cat.indicators, cat.standards, strategy_ids(),
+                    [o if isinstance(o, str) else o.name for o in OBJECTIVES]):
+            assert all(i in texts[name] for i in ids), (name, list(ids))
+    for name in ("run", "batch"):
+        assert all(f in texts[name] for f in FORMATS)
+    assert all(i in texts["simulate"] for i in [*cat.titrants, *cat.indicators, *cat.masking, *cat.buffers,
+                                                 *strategy_ids(), *cat.standards])
+    assert "Fe(III)" in texts["conditional"] and "Fe(III)" in texts["constants"]
+
+
+def _readme():
+    return (Path(__file__).resolve().parent.parent / "README.md").read_text(encoding="utf-8")
+
+
+def test_readme_demo_is_the_demo_file_and_the_annotated_example_is_valid(scenarios_dir):
+    """The README shows the demo file as it is, and its every-key example is a scenario the reader accepts."""
+    from optimiser.scenario import demo, parse
+    blocks = re.findall(r"```yaml\n(.*?)```", _readme(), flags=re.S)
+    assert blocks[0] == (scenarios_dir / "hardness_iron_aluminium.yaml").read_text(encoding="utf-8")
+    assert dict(parse(blocks[0], "readme.yaml").as_read) == dict(demo().as_read)  # and the packaged demo is the same
+    sc = parse(blocks[1], "readme-every-key.yaml")
+    assert sc.name == "every-key-example" and sc.search.max_masking_agents == 1
+
+
+def test_readme_commands_are_the_program_s():
+    """Every command and option in the README's command table exists in the parser."""
+    import argparse
+
+    from optimiser.cli import build_parser
+    subs = next(a for a in build_parser()._actions if isinstance(a, argparse._SubParsersAction)).choices
+    rows = re.findall(r"^\| `optimiser (\w+)([^`]*)`", _readme(), flags=re.M)
+    assert {cmd for cmd, _ in rows} == set(subs)
+    for cmd, usage in rows:
+        options = {o for a in subs[cmd]._actions for o in a.option_strings}
+        for opt in re.findall(r"--[\w-]+", usage):
+            assert opt in options, (cmd, opt)

@@ -9,7 +9,8 @@ from conftest import AL_BACK
 
 from optimiser import report
 from optimiser.analysis import analyse
-from optimiser.report import FIGURES, SECTIONS, fmt, signed
+from optimiser.report import FIGURES, SECTIONS, fmt
+from optimiser.report.text import signed_fixed
 from optimiser.results import dumps, to_json
 from optimiser.scenario import parse
 from optimiser.search import run_search
@@ -56,8 +57,8 @@ def test_summary_numbers_equal_the_result(written, result):
     html = written[0].read_text()
     t = result.recommended_titration
     assert f'<b id="endpoint-mL">{fmt(t.endpoint_mL, 4)} mL</b>' in html
-    assert f'<b id="error-percent">{signed(t.standardised_error_percent, 3)} %</b>' in html
-    assert f"({signed(t.error_percent, 3)} % before)" in html
+    assert f'<b id="error-percent">{signed_fixed(t.standardised_error_percent)} %</b>' in html  # to 0.001 %
+    assert f"({signed_fixed(t.error_percent)} % before)" in html
     doc = json.loads(written[1].read_text())
     rec = doc["recommended"] if result.meets_criteria else doc["closest_compromise"]
     assert (doc["recommended"] is None) == (not result.meets_criteria)
@@ -129,20 +130,52 @@ def test_back_titration_procedure_adds_the_excess_before_the_buffer():
     assert excess < buffer < titrate and "boil" in steps[excess]
 
 
-@pytest.mark.browser
-def test_report_renders_in_headless_chromium(written, tmp_path):
-    """Open the report from a file URL in Debian's chromium: no console errors, every figure has a size; screenshot."""
+BROWSER_WIDTHS = (1280, 390)  # CSS px: a laptop window and a phone (390 px is a common phone's viewport width)
+
+# Measured in the page: its width and scroll width; every figure's right edge; every table's wrapper's right edge and
+# whether the table needs to scroll inside it; the headline pH; the pH values the bench procedure gives (two decimals).
+LAYOUT_JS = """JSON.stringify({
+  page: document.documentElement.clientWidth, scroll: document.documentElement.scrollWidth,
+  figures: [...document.querySelectorAll('figure, figure svg')].map(e => [e.closest('figure').id, e.getBoundingClientRect().right, e.getBoundingClientRect().width, e.getBoundingClientRect().height]),
+  tables: [...document.querySelectorAll('table')].map(t => { const w = t.parentElement;
+    return [t.closest('section') ? t.closest('section').id : '', w.className, w.getBoundingClientRect().right, t.scrollWidth, w.clientWidth]; }),
+  headline: (document.getElementById('headline-pH') || {}).textContent || null,
+  procedure: [...(document.querySelector('ol.procedure') || {textContent: ''}).textContent.matchAll(/pH (\\d+\\.\\d\\d)(?!\\d)/g)].map(m => m[1])
+})"""
+
+
+def _chromium_or_skip():
+    """The browser helper, or a skip that says why (pytest prints the reason: ``-rs`` is in the default options)."""
     import browser
     if browser.find_chromium() is None:
         if os.environ.get("OPTIMISER_REQUIRE_BROWSER"):
             pytest.fail("chromium is required here (OPTIMISER_REQUIRE_BROWSER is set) but not installed")
-        pytest.skip("chromium is not installed: apt-get install chromium (CI installs it and requires this test)")
-    shot = tmp_path / "report.png"
-    js = "JSON.stringify([...document.querySelectorAll('figure svg')].map(s => { const r = s.getBoundingClientRect(); " \
-         "return [r.width, r.height]; }))"
-    out = browser.render(written[0].resolve().as_uri(), str(shot), js=js)
-    sizes = json.loads(out["value"])
-    assert len(sizes) == len(FIGURES)
-    assert all(w > 100 and h > 100 for w, h in sizes), sizes
+        pytest.skip("no chromium found (apt-get install chromium); set OPTIMISER_REQUIRE_BROWSER=1 to make this a failure")
+    return browser
+
+
+@pytest.mark.browser
+@pytest.mark.parametrize("width", BROWSER_WIDTHS)
+def test_report_fits_the_page_in_headless_chromium(written, tmp_path, width):
+    """Open the report in Debian's chromium at a laptop's and a phone's width: no console errors; the page never
+    scrolls sideways; no figure is wider than the page; every table sits in a wrapper of page width (at 1280 px no
+    table even needs to scroll in it); the headline pH equals the procedure's pH to 0.01."""
+    browser = _chromium_or_skip()
+    shot = tmp_path / f"report-{width}.png"
+    out = browser.render(written[0].resolve().as_uri(), str(shot), width=width, height=900, js=LAYOUT_JS)
     assert out["errors"] == []
+    m = json.loads(out["value"])
+    page = m["page"]
+    assert m["scroll"] <= page, f"the page scrolls sideways at {width} px"
+    assert len({f[0] for f in m["figures"]}) == len(FIGURES)
+    for fig, right, w, h in m["figures"]:
+        assert right <= page + 0.5 and w > 100 and h > 100, (fig, right, w, h, page)
+    assert m["tables"]
+    for section, wrapper, right, table_w, wrapper_w in m["tables"]:
+        assert wrapper == "table-scroll" and right <= page + 0.5, (section, wrapper, right, page)
+        if width >= 1280:
+            assert table_w <= wrapper_w, f"a table in section {section} is cut at {width} px ({table_w} > {wrapper_w})"
+    headline = m["headline"].removeprefix("pH ").strip()
+    assert re.fullmatch(r"\d+\.\d\d", headline) and m["procedure"], (m["headline"], m["procedure"])
+    assert set(m["procedure"]) == {headline}, (headline, m["procedure"])
     assert shot.stat().st_size > 10000

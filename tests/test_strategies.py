@@ -86,7 +86,7 @@ def test_findings_are_worded_in_one_place():
     assert "blocked" in kinds
     assert t.warnings == fd.words(t.findings, fd.WARNING)
     blocked = next(f for f in t.findings if f.kind == "blocked")
-    assert blocked.values["metals"] == ["Al"] and "Al block(s) Eriochrome Black T" in blocked.text
+    assert blocked.values["metals"] == ["Al"] and "Al blocks Eriochrome Black T" in blocked.text  # the verb agrees with one metal
     with pytest.raises(KeyError):
         fd.warning("no-such-kind")
 

@@ -5,6 +5,7 @@ an :class:`optimiser.analysis.Analysis`: the arrays of its search result, and th
 """
 from __future__ import annotations
 
+import hashlib
 import io
 import re
 from typing import TYPE_CHECKING
@@ -22,8 +23,11 @@ if TYPE_CHECKING:  # pragma: no cover
 STYLES = [("-", "o"), ("--", "s"), ("-.", "^"), (":", "D"), ((0, (5, 1, 1, 1)), "v"), ((0, (1, 1)), "P"), ((0, (8, 2)), "X")]
 COLOURS = ["#1b4f72", "#a04000", "#196f3d", "#6c3483", "#7b7d7d", "#b7950b", "#922b21"]
 
+# svg.hashsalt fixed: matplotlib salts its clip-path ids with a random uuid otherwise, and identical runs must give
+# identical files (so must the figure ids below, taken from the SVG's content, and the metadata, written without a date)
 plt.rcParams.update({"font.size": 9, "axes.grid": True, "grid.alpha": 0.3, "svg.fonttype": "none",
-                     "font.family": "sans-serif", "figure.dpi": 100})
+                     "font.family": "sans-serif", "figure.dpi": 100, "svg.hashsalt": "optimiser-report"})
+SVG_METADATA = {"Date": None, "Creator": None}
 
 
 def _style(i: int) -> dict:
@@ -33,16 +37,23 @@ def _style(i: int) -> dict:
 
 def _svg(fig) -> str:
     buf = io.StringIO()
-    fig.savefig(buf, format="svg", bbox_inches="tight")
+    fig.savefig(buf, format="svg", bbox_inches="tight", metadata=SVG_METADATA)
     plt.close(fig)
     text = buf.getvalue()
     text = text[text.index("<svg"):]
-    # unique ids per figure so that several inline SVGs do not share clip-path ids
-    tag = f"f{abs(hash(text)) % 10**8}"
+    # unique ids per figure so that several inline SVGs do not share clip-path ids; from the content, not from
+    # Python's hash() (salted per process), so that identical runs give identical ids
+    tag = "f" + hashlib.sha256(text.encode("utf-8")).hexdigest()[:10]
     text = re.sub(r'id="([^"]+)"', lambda m: f'id="{tag}-{m.group(1)}"', text)
     text = re.sub(r'url\(#([^)]+)\)', lambda m: f"url(#{tag}-{m.group(1)})", text)
     text = re.sub(r'xlink:href="#([^"]+)"', lambda m: f'xlink:href="#{tag}-{m.group(1)}"', text)
     return text
+
+
+def _legend_below(fig, handles: list, labels: list, ncol: int = 2) -> None:
+    """The figure's legend under its axes (and their labels), never over a curve."""
+    fig.tight_layout()
+    fig.legend(handles, labels, fontsize=7, ncol=ncol, loc="upper center", bbox_to_anchor=(0.5, 0.0), frameon=False)
 
 
 def conditional_figure(analysis: Analysis) -> str:
@@ -61,7 +72,7 @@ def conditional_figure(analysis: Analysis) -> str:
         ax.annotate("recommended pH", (result.recommended.candidate.pH, ax.get_ylim()[1]), ha="left", va="top", fontsize=8)
     ax.set_xlabel("pH")
     ax.set_ylabel(f"log K' (conditional, {analysis.log_K_table.titrant}) / log(L/mol)")
-    ax.legend(fontsize=7, ncol=2, loc="lower right")
+    _legend_below(fig, *ax.get_legend_handles_labels(), ncol=2)
     return _svg(fig)
 
 
@@ -73,9 +84,13 @@ def pareto_figure(analysis: Analysis) -> str:
     F = np.array([a.evaluation.F for a in result.front]) if result.front else np.zeros((0, len(objs)))
     pairs = [(objs[0], o) for o in objs[1:]] if len(objs) > 1 else [(objs[0], objs[0])]
     n = len(pairs)
-    fig, axes = plt.subplots(1, n, figsize=(2.6 * n, 2.6), squeeze=False)
+    cols = min(n, 2)  # a grid of two columns: a row of four panels would be a strip too low to read on a phone
+    rows = -(-n // cols)
+    fig, axes = plt.subplots(rows, cols, figsize=(3.2 * cols, 2.6 * rows), squeeze=False)
+    for ax in axes.flat[n:]:
+        ax.set_visible(False)
     strategies = sorted({a.strategy for a in result.front})
-    for ax, (a, b) in zip(axes[0], pairs):
+    for ax, (a, b) in zip(axes.flat, pairs):
         ia, ib = objs.index(a), objs.index(b)
         for k, strat in enumerate(strategies):
             sel = [j for j, alt in enumerate(result.front) if alt.strategy == strat]
@@ -86,8 +101,7 @@ def pareto_figure(analysis: Analysis) -> str:
             ax.scatter([f[ia]], [f[ib]], marker="*", s=120, color="black", label="recommended")
         ax.set_xlabel(labels[a])
         ax.set_ylabel(labels[b])
-    axes[0][0].legend(fontsize=7, loc="best")
-    fig.tight_layout()
+    _legend_below(fig, *axes[0][0].get_legend_handles_labels(), ncol=min(len(strategies) + 1, 4))
     return _svg(fig)
 
 
@@ -114,7 +128,7 @@ def titration_figure(analysis: Analysis) -> str:
     ax.set_ylabel("pM = -log10 [M] (free metal ion)")
     h1, l1 = ax.get_legend_handles_labels()
     h2, l2 = ax2.get_legend_handles_labels()
-    ax.legend(h1 + h2, l1 + l2, fontsize=7, loc="best")
+    _legend_below(fig, h1 + h2, l1 + l2, ncol=3)
     return _svg(fig)
 
 
@@ -180,7 +194,7 @@ def robustness_figure(analysis: Analysis) -> str:
     ax.axvline(result.recommended.candidate.pH, color="black", lw=1, linestyle="--", label="recommended")
     ax.set_xlabel("pH")
     ax.set_ylabel("predicted titration error / %")
-    ax.legend(fontsize=7)
+    handles = ax.get_legend_handles_labels()
     for k, (agent, (dose, derr)) in enumerate(result.robustness_dose_scan.items(), start=1):
         ax = axes[0][k]
         ax.semilogx(dose * 1000, derr, marker="s", markersize=3, color="black")
@@ -190,9 +204,11 @@ def robustness_figure(analysis: Analysis) -> str:
             ax.axvspan(lo * 1000, hi * 1000, color="0.75", alpha=0.6)
         d0 = dict(result.recommended.candidate.masking)[agent]
         ax.axvline(d0 * 1000, color="black", lw=1, linestyle="--")
+        # 1-2-5 ticks: a dose window of a factor of 20 spans a single decade tick otherwise
+        ax.xaxis.set_major_locator(matplotlib.ticker.LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
         ax.xaxis.set_major_formatter(matplotlib.ticker.FormatStrFormatter("%g"))
         ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
         ax.set_xlabel(f"{agent} dose / (mmol/L)")
         ax.set_ylabel("predicted titration error / %")
-    fig.tight_layout()
+    _legend_below(fig, *handles, ncol=3)
     return _svg(fig)

@@ -2,12 +2,15 @@
 from __future__ import annotations
 
 import datetime as _dt
+import os
+import re
+from collections.abc import Mapping
 from importlib import resources
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 from .. import __version__
-from .text import fmt, range_text, signed
+from .text import fmt, pH_text, range_text, share_percent, signed, signed_fixed
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..analysis import Analysis
@@ -20,7 +23,8 @@ def _env():
     import jinja2  # loaded when a page is rendered, not when the command line is parsed
     loader = jinja2.FunctionLoader(lambda name: resources.files("optimiser.report").joinpath(name).read_text(encoding="utf-8"))
     env = jinja2.Environment(loader=loader, autoescape=True, undefined=jinja2.StrictUndefined)
-    env.globals.update(fmt=fmt, signed=signed, range_text=range_text)
+    env.globals.update(fmt=fmt, signed=signed, range_text=range_text, pH_text=pH_text, share_percent=share_percent,
+                       signed_fixed=signed_fixed)
     return env
 
 
@@ -34,13 +38,33 @@ def _figures(analysis: Analysis) -> dict[str, str]:
     return figs
 
 
+def build_date(environ: Mapping[str, str] = os.environ) -> str | None:
+    """The date a report shows: from SOURCE_DATE_EPOCH (seconds since 1970, UTC) when it is set, else none, so that
+    identical runs write identical files (the reproducible-builds convention).
+
+    >>> build_date({"SOURCE_DATE_EPOCH": "1700000000"}), build_date({})
+    ('2023-11-14', None)
+    """
+    epoch = environ.get("SOURCE_DATE_EPOCH", "").strip()
+    if not epoch.isdigit():
+        return None
+    return _dt.datetime.fromtimestamp(int(epoch), _dt.timezone.utc).strftime("%Y-%m-%d")
+
+
+def _scrolling_tables(page: str) -> str:
+    """Every table inside a wrapper as wide as the page that scrolls sideways when the table is wider (a phone), so
+    that no table widens the page. (Cell text is escaped, so a literal ``<table`` is always markup.)"""
+    page = re.sub(r"<table\b", '<div class="table-scroll"><table', page)
+    return page.replace("</table>", "</table></div>")
+
+
 def render(analysis: Analysis, date: str | None = None) -> str:
-    """The report as one HTML string."""
+    """The report as one HTML string (``date``: as given, else :func:`build_date`)."""
     result = analysis.result
     css = resources.files("optimiser.report").joinpath("style.css").read_text(encoding="utf-8")
-    return _env().get_template("template.html.j2").render(
+    return _scrolling_tables(_env().get_template("template.html.j2").render(
         a=analysis, sc=analysis.scenario, result=result, m=analysis.method, figs=_figures(analysis), css=css,
-        version=__version__, date=date or _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC"))
+        version=__version__, date=date or build_date()))
 
 
 def write_html(analysis: Analysis, path: Path) -> None:
