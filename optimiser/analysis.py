@@ -22,7 +22,8 @@ from .constants import database
 from .errors import MissingConstantError
 from .method import Method
 from .procedure import BenchMethod, bench_method
-from .objectives import COTITRATED_SHARE_MAX, PH_DRIFT_MAX, READABLE_DROPS
+from .medium import side_reactions
+from .objectives import COTITRATED_SHARE_MAX, PH_DRIFT_MAX, READABLE_DROPS, TABLE_IONIC_STRENGTH_M
 from .readout import CATEGORIES, DROP_mL, budget_label
 from .reagents import HAZARD_NAMES, catalogue
 from .scenario import Scenario
@@ -172,8 +173,12 @@ def metal_order(scenario: Scenario) -> tuple[str, ...]:
     return tuple(s.analyte) + tuple(m for m in s.metals if m not in s.analyte)
 
 
-def _conditions(scenario: Scenario) -> Conditions:
-    return Conditions(scenario.sample.ionic_strength_M, scenario.sample.temperature_C)
+def _conditions(scenario: Scenario, method: Method | None) -> tuple[Conditions, dict[str, float]]:
+    """The side-reaction picture's conditions and alkali ions for ``method`` (:func:`optimiser.medium.side_reactions`);
+    without a method, the handbook tables' ionic strength and no alkali ions."""
+    if method is None:
+        return Conditions(TABLE_IONIC_STRENGTH_M, scenario.sample.temperature_C), {}
+    return side_reactions(scenario.sample, method)
 
 
 def analyte_feasibility(scenario: Scenario, method: Method) -> float:
@@ -185,7 +190,8 @@ def analyte_feasibility(scenario: Scenario, method: Method) -> float:
     """
     s = scenario.sample
     ligands = method.ligand_totals()
-    return min(float(feasibility(conditional_constant(a, method.titrant, method.pH, ligands, _conditions(scenario))
+    cond, alkali = _conditions(scenario, method)
+    return min(float(feasibility(conditional_constant(a, method.titrant, method.pH, ligands, cond, alkali)
                                  .log_K_conditional, s.metals[a])) for a in s.analyte)
 
 
@@ -259,9 +265,10 @@ def log_K_table(result: SearchResult) -> LogKTable:
     titrant = method.titrant if method else sc.search.titrants[0]  # as the search's log K' curves
     ligands = method.ligand_totals() if method else {}
     rows = []
+    cond, alkali = _conditions(sc, method)
     for metal in metal_order(sc):
         try:
-            vals = tuple(conditional_constant(metal, titrant, pHs, ligands, _conditions(sc)).log_K_conditional.tolist())
+            vals = tuple(conditional_constant(metal, titrant, pHs, ligands, cond, alkali).log_K_conditional.tolist())
         except MissingConstantError:
             vals = (None,) * len(pHs)
         rows.append(LogKRow(metal, "analyte" if metal in sc.sample.analyte else "interferent", sc.sample.metals[metal] * 1000,

@@ -47,7 +47,7 @@ def _built(file: str, section: str | None, make) -> dict[str, Any]:
 
 def _titrant(d: Mapping[str, Any]) -> Titrant:
     return Titrant(d["id"], d["name"], d["formula"], d["salt"], d["hazard"], tuple(d["cautions"]), d["complexity"],
-                   d["search_default"], tuple(d["aliases"]))
+                   d["search_default"], tuple(d["aliases"]), tuple((k, float(v)) for k, v in d["counter_ions"].items()))
 
 
 def _buffer(d: Mapping[str, Any]) -> Buffer:

@@ -22,10 +22,11 @@ from numpy.typing import NDArray
 
 from . import findings as fd
 from . import readout
-from .constants import H, database
+from .constants import DAVIES_LIMIT_M, H, database
 from .equilibrium import Equilibrium, build_system, solve
 from .errors import InapplicableMethodError, MissingConstantError
 from .findings import Finding
+from .medium import background_M, beyond_davies, medium
 from .method import Method, Sample
 from .pretreatment import Prepared, prepare
 from .readout import DROP_mL, GRADUAL_DROPS
@@ -108,6 +109,7 @@ class Titration:
     slow_analytes: tuple[str, ...] = ()
     analyte_precipitates: tuple[str, ...] = ()
     mass_balance_error: float = 0.0  # largest relative mass-balance error over the curve, recomputed
+    ionic_strength_M: Array = field(default_factory=lambda: np.zeros(0), repr=False)  # computed at each point [mol/L]
     standardisation: EndPoint | None = None  # the same method on the primary standard, where simulated
 
     @property
@@ -218,7 +220,9 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
     if not any(prep.metals.get(a, 0.0) > 0 for a in sample.analyte):
         raise InapplicableMethodError(f"the method leaves no {', '.join(sample.analyte)} to titrate: "
                                       f"{', '.join(a for a, _ in method.masking) or 'its reagents'} mask or reduce the analyte itself")
-    system = build_system(tuple(metals), method.ligands)
+    med = medium(sample, method)
+    ions = med.present()
+    system = build_system(tuple(metals) + ions, method.ligands)
     comps = system.components
     V0, cT = sample.volume_mL, method.titrant_conc_M
     binding = [m for m in prep.metals if db.metals[m].get("binds_titrant", True) is not False]
@@ -228,16 +232,19 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
     for lig, c in prep.ligand_totals.items():
         base[comps.index(lig)] += c
     base[comps.index(method.indicator)] += method.indicator_dose_M
-    iY = comps.index(method.titrant)
+    added = np.zeros(len(comps))  # what one mole of titrant brings: the titrant and its counter-ions
+    added[comps.index(method.titrant)] = 1.0
+    for ion in ions:
+        base[comps.index(ion)] += med.cations.get(ion, 0.0)
+        added[comps.index(ion)] += med.titrant_cations.get(ion, 0.0)
 
     def totals_before(V: Array) -> Array:
-        T = base[None, :] * (V0 / (V0 + V))[:, None]
-        T[:, iY] += cT * V / (V0 + V)
-        return T
+        return base[None, :] * (V0 / (V0 + V))[:, None] + added[None, :] * (cT * V / (V0 + V))[:, None]
 
     p = Plan(sample=sample, method=method, prep=prep, system=system, metals=metals, totals_before=totals_before,
              V_eq=sample.n_analyte_mmol / cT, V_all=sum(prep.metals[m] for m in binding) * V0 / cT, n_points=n_points,
-             slow=[m for m in sample.analyte if db.metals[m].get("slow_with_titrant")], findings=list(prep.findings))
+             slow=[m for m in sample.analyte if db.metals[m].get("slow_with_titrant")], findings=list(prep.findings),
+             medium=med)
     strategy.plan_curve(p)
     p.V = np.linspace(0.0, p.V_hi, n_points)
     return p
@@ -252,15 +259,17 @@ def _solve_batch(plans: Sequence[Plan], grids: Sequence[Array | None]) -> list[E
             groups.setdefault(id(p.system), []).append(k)
     for ks in groups.values():
         system = plans[ks[0]].system
-        T = np.concatenate([plans[k].totals(grids[k]) for k in ks])
+        blocks = [plans[k].totals(grids[k]) for k in ks]
+        T = np.concatenate(blocks)
         pH = np.concatenate([np.full(len(grids[k]), plans[k].method.pH) for k in ks])
-        I = np.concatenate([np.full(len(grids[k]), plans[k].sample.ionic_strength_M) for k in ks])
+        bg = np.concatenate([background_M(plans[k], Tk) for k, Tk in zip(ks, blocks)])
         Tc = np.concatenate([np.full(len(grids[k]), plans[k].sample.temperature_C) for k in ks])
         labels = [f"{plans[k].method.strategy.volume_name} volume {v:.4f} mL "
                   f"(pH {plans[k].method.pH:.2f}, {plans[k].method.titrant}, {plans[k].method.indicator})"
                   for k in ks for v in grids[k]]
         restart = np.concatenate([np.arange(len(grids[k])) == 0 for k in ks])  # continuation within each curve
-        eq = solve(system, T, pH=pH, ionic_strength_M=I, temperature_C=Tc, point_labels=labels, restart=restart)
+        eq = solve(system, T, pH=pH, ionic_strength_M=None, background_ionic_strength_M=bg, temperature_C=Tc,
+                   point_labels=labels, restart=restart)
         start = 0
         for k in ks:
             n = len(grids[k])
@@ -424,6 +433,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     if V_ep is None and not blocked and ref >= readout.UNBOUND_INDICATOR and strategy.reads_release:
         blocked += [m for m in (readout.inferred_blocker(eq, method, metals),) if m is not None]
     found += _indicator_findings(plan, blocked, blank, sharp if V_ep is not None else None)
+    found += _medium_findings(plan, eq.ionic_strength_M)
     usable = indicator.usable_pH[0] <= method.pH <= indicator.usable_pH[1]
     h_free = readout.dominant_free_form(fr, strategy.free_form_point())
     change = strategy.colour_change(indicator.complex_colour(strategy.complex_metal(method, sample)),
@@ -439,7 +449,7 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
         speciation_end=readout.speciation(eqp, ep, prep, method, metals), constants_used=tuple(system.uses()),
         pH_drift=drift, masked_by_assumption=prep.masked_metals,
         indicator_blank_percent=blank, slow_analytes=tuple(plan.slow), analyte_precipitates=tuple(analyte_solids),
-        mass_balance_error=eq.mass_balance_error())
+        mass_balance_error=eq.mass_balance_error(), ionic_strength_M=eq.ionic_strength_M)
 
 
 def _curve_arrays(eq: Equilibrium, method: Method, metals: Sequence[str]) -> tuple[dict[str, Array], dict[str, Array]]:
@@ -470,6 +480,20 @@ def _indicator_findings(plan: Plan, blocked: list[str], blank: float | None, sha
         out.append(fd.warning("needs_magnesium", indicator=indicator.name))
     if sharp is not None and sharp > GRADUAL_DROPS * DROP_mL:
         out.append(fd.warning("too_gradual", sharpness_mL=sharp, drops=sharp / DROP_mL))
+    return out
+
+
+def _medium_findings(plan: Plan, ionic_strength_M: Array) -> list[Finding]:
+    """The medium as a stated assumption (its counter-ions and the ionic strength computed along the curve), and a
+    warning where that ionic strength passes the range of the Davies equation."""
+    med = plan.medium
+    ions = {m: med.cations.get(m, 0.0) for m in med.present()}
+    out = [fd.assumption("medium", ions=ions, titrant_ions=dict(med.titrant_cations), titrant=plan.method.titrant,
+                         low=float(np.min(ionic_strength_M)), high=float(np.max(ionic_strength_M)),
+                         background=med.background_M)]
+    top = beyond_davies(ionic_strength_M)
+    if top is not None:
+        out.append(fd.warning("davies_range", source="memory", ionic_strength=top, limit=DAVIES_LIMIT_M))
     return out
 
 
@@ -505,10 +529,11 @@ def _pH_drifts(live: Sequence[Plan], coarse: Sequence[Equilibrium], V_eps: Seque
             V0 = p.sample.volume_mL
             T[:, iH] = T_H0 * V0 / (V0 + V) + TITRANT_PROTONS * p.method.titrant_conc_M * V / (V0 + V)
             blocks.append(T)
-        I = np.concatenate([np.full(2, live[k].sample.ionic_strength_M) for k in ks])
+        bg = np.concatenate([background_M(live[k], T) for k, T in zip(ks, blocks)])
         Tc = np.concatenate([np.full(2, live[k].sample.temperature_C) for k in ks])
         restart = np.tile([True, False], len(ks))
-        free = solve(system, np.concatenate(blocks), pH=None, ionic_strength_M=I, temperature_C=Tc, restart=restart)
+        free = solve(system, np.concatenate(blocks), pH=None, ionic_strength_M=None, background_ionic_strength_M=bg,
+                     temperature_C=Tc, restart=restart)
         for n, k in enumerate(ks):
             out[k] = float(free.pH[2 * n + 1] - free.pH[2 * n])
     return out
