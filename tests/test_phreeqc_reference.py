@@ -24,6 +24,10 @@ CASES = [
     ("Cu-EDTA pH 4", ("Cu",), ("EDTA", "acetate"), {"Cu": 0.005, "EDTA": 0.004, "acetate": 0.1}, 4.5, False),
     ("Mg(OH)2 precipitate pH 11", ("Mg",), (), {"Mg": 0.01}, 11.0, True),
     ("Ca beside Mg(OH)2 pH 12.5", ("Ca", "Mg"), ("EDTA",), {"Ca": 0.002, "Mg": 0.002, "EDTA": 0.001}, 12.5, True),
+    # the medium's Na+ and K+ as components (their pairs NaY3-, KY3-): the disodium titrant's Na+ past equivalence
+    ("Ca-EDTA with Na+ and K+ pH 10", ("Ca", "Na", "K"), ("EDTA",), {"Ca": 0.01, "Na": 0.024, "K": 0.05, "EDTA": 0.012},
+     10.0, False),
+    ("Mg-EDTA with Na+ pH 12", ("Mg", "Na"), ("EDTA",), {"Mg": 0.002, "Na": 0.03, "EDTA": 0.003}, 12.0, False),
 ]
 
 
