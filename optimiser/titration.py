@@ -34,6 +34,10 @@ from .strategies.base import Plan
 
 Array = NDArray[np.float64]
 TITRANT_PROTONS = 2  # titrant added as the disodium salt Na2H2Y (common practice)
+# The computed ionic strength's stopping rule on a curve: a relative change of 1e-5 keeps every species within
+# 1.5e-5 relative (6e-6 log units) of the solver's default 1e-8 (measured on hardness curves at pH 5, 10 and 12.5),
+# and the search then needs 5 % more Newton iterations than at a fixed ionic strength instead of 50 % more.
+CURVE_I_TOL = 1e-5
 
 __all__ = ["Sample", "Method", "Prepared", "prepare", "EndPoint", "Titration", "simulate", "simulate_many", "DROP_mL",
            "GRADUAL_DROPS"]
@@ -250,8 +254,12 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
     return p
 
 
-def _solve_batch(plans: Sequence[Plan], grids: Sequence[Array | None]) -> list[Equilibrium | None]:
-    """Solve the grids of many titrations, one equilibrium call per chemical system."""
+def _solve_batch(plans: Sequence[Plan], grids: Sequence[Array | None], starts: Sequence[Equilibrium | None] | None = None
+                 ) -> list[Equilibrium | None]:
+    """Solve the grids of many titrations, one equilibrium call per chemical system.
+
+    The ionic strength is computed at each point; a curve's first point starts its iteration from the medium's
+    estimate, or, where ``starts`` gives a solved coarse curve, from that curve's ionic strength at the same volume."""
     out: list[Equilibrium | None] = [None] * len(plans)
     groups: dict[int, list[int]] = {}
     for k, (p, g) in enumerate(zip(plans, grids)):
@@ -263,19 +271,28 @@ def _solve_batch(plans: Sequence[Plan], grids: Sequence[Array | None]) -> list[E
         T = np.concatenate(blocks)
         pH = np.concatenate([np.full(len(grids[k]), plans[k].method.pH) for k in ks])
         bg = np.concatenate([background_M(plans[k], Tk) for k, Tk in zip(ks, blocks)])
+        I0 = np.concatenate([_start_I(plans[k], grids[k], starts[k] if starts is not None else None) for k in ks])
         Tc = np.concatenate([np.full(len(grids[k]), plans[k].sample.temperature_C) for k in ks])
         labels = [f"{plans[k].method.strategy.volume_name} volume {v:.4f} mL "
                   f"(pH {plans[k].method.pH:.2f}, {plans[k].method.titrant}, {plans[k].method.indicator})"
                   for k in ks for v in grids[k]]
         restart = np.concatenate([np.arange(len(grids[k])) == 0 for k in ks])  # continuation within each curve
         eq = solve(system, T, pH=pH, ionic_strength_M=None, background_ionic_strength_M=bg, temperature_C=Tc,
-                   point_labels=labels, restart=restart)
+                   point_labels=labels, restart=restart, I_tol=CURVE_I_TOL, ionic_strength_start_M=I0)
         start = 0
         for k in ks:
             n = len(grids[k])
             out[k] = _slice(eq, slice(start, start + n))
             start += n
     return out
+
+
+def _start_I(p: Plan, grid: Array, coarse: Equilibrium | None) -> Array:
+    """Where the computed ionic strength starts on a grid: the coarse curve's at the same volumes, else the
+    medium's estimate for the aliquot as prepared [mol/L]."""
+    if coarse is None:
+        return np.full(len(grid), p.medium.ionic_strength_M)
+    return np.interp(grid, p.V, coarse.ionic_strength_M)
 
 
 def _slice(eq: Equilibrium, sl: slice) -> Equilibrium:
@@ -362,12 +379,12 @@ def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
     coarse = _solve_batch(live, [p.V for p in live])
     refs = [p.method.strategy.reference(p, eq) for p, eq in zip(live, coarse)]
     fine_grids = [_fine_grid(p, eq, ref) for p, eq, ref in zip(live, coarse, refs)]
-    fine = _solve_batch(live, fine_grids)
+    fine = _solve_batch(live, fine_grids, coarse)
     V_eps = []
     for p, eqf, grid, ref in zip(live, fine, fine_grids, refs):
         V_eps.append(readout.interp_crossing(grid, p.method.strategy.turned(p, eqf, ref), 0.5) if eqf is not None else None)
     probes = [np.array([p.V_eq_ref] + ([v] if v is not None else [])) for p, v in zip(live, V_eps)]
-    probed = _solve_batch(live, probes)
+    probed = _solve_batch(live, probes, coarse)
     drifts = _pH_drifts(live[:n_drift], coarse, V_eps) if pH_drift else []
     drifts += [None] * (len(live) - len(drifts))
     return [_finish(p, c, f, g, pr, ref, v, d)
@@ -532,8 +549,9 @@ def _pH_drifts(live: Sequence[Plan], coarse: Sequence[Equilibrium], V_eps: Seque
         bg = np.concatenate([background_M(live[k], T) for k, T in zip(ks, blocks)])
         Tc = np.concatenate([np.full(2, live[k].sample.temperature_C) for k in ks])
         restart = np.tile([True, False], len(ks))
+        I0 = np.concatenate([_start_I(live[k], np.array([0.0, V_eps[k]]), coarse[k]) for k in ks])
         free = solve(system, np.concatenate(blocks), pH=None, ionic_strength_M=None, background_ionic_strength_M=bg,
-                     temperature_C=Tc, restart=restart)
+                     temperature_C=Tc, restart=restart, I_tol=CURVE_I_TOL, ionic_strength_start_M=I0)
         for n, k in enumerate(ks):
             out[k] = float(free.pH[2 * n + 1] - free.pH[2 * n])
     return out

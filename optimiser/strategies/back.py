@@ -60,7 +60,8 @@ class BackTitration(Strategy):
 
             T_x = plan.totals_before(np.array([V_x]))
             first = solve(system, T_x, pH=method.pH, ionic_strength_M=None,
-                          background_ionic_strength_M=background_M(plan, T_x), temperature_C=sample.temperature_C)
+                          background_ionic_strength_M=background_M(plan, T_x), temperature_C=sample.temperature_C,
+                          ionic_strength_start_M=plan.medium.ionic_strength_M)
             for m in plan.slow:
                 bound = first.bound(m, method.titrant)[0]
                 inert[comps.index(m)] += bound
