@@ -505,9 +505,11 @@ def _medium_findings(plan: Plan, ionic_strength_M: Array) -> list[Finding]:
     warning where that ionic strength passes the range of the Davies equation."""
     med = plan.medium
     ions = {m: med.cations.get(m, 0.0) for m in med.present()}
-    out = [fd.assumption("medium", ions=ions, titrant_ions=dict(med.titrant_cations), titrant=plan.method.titrant,
+    titrant = plan.method.titrant
+    unpaired = [m for m in ions if not database().complexes.get((m, titrant))]
+    out = [fd.assumption("medium", ions=ions, titrant_ions=dict(med.titrant_cations), titrant=titrant,
                          low=float(np.min(ionic_strength_M)), high=float(np.max(ionic_strength_M)),
-                         background=med.background_M)]
+                         background=med.background_M, unpaired=unpaired)]
     top = beyond_davies(ionic_strength_M)
     if top is not None:
         out.append(fd.warning("davies_range", source="memory", ionic_strength=top, limit=DAVIES_LIMIT_M))
