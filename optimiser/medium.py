@@ -36,7 +36,14 @@ import periodictable
 from numpy.typing import NDArray
 
 from .conditional import Conditions, ligand_fractions
-from .constants import DAVIES_LIMIT_M, IONIC_STRENGTH_MAX_M, database, davies_A, davies_f, log_K_at
+from .constants import (
+    DAVIES_LIMIT_M,
+    IONIC_STRENGTH_MAX_M,
+    database,
+    davies_A,
+    davies_f,
+    log_K_at,
+)
 
 if TYPE_CHECKING:  # pragma: no cover
     from .method import Method, Sample
@@ -198,7 +205,7 @@ def _recipe_ions(sample: Sample, method: Method, I: float) -> tuple[list[tuple[s
         h = free_hydrogen_M(pH, I, T)
         half_z2 += 0.5 * h
         parts.append((label, "anion", h))
-    for agent, (_, dose) in zip(method.masking_agents, method.masking):
+    for agent, (_, dose) in zip(method.masking_agents, method.masking, strict=True):
         parts += [(f"masking ({agent.id})", m, n * dose) for m, n in formula_ions(agent.formula)]
         half_z2 += 0.5 * db.charges[agent.ligand] ** 2 * dose
     return parts, half_z2

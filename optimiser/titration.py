@@ -270,7 +270,7 @@ def _solve_batch(plans: Sequence[Plan], grids: Sequence[Array | None], starts: S
         blocks = [plans[k].totals(grids[k]) for k in ks]
         T = np.concatenate(blocks)
         pH = np.concatenate([np.full(len(grids[k]), plans[k].method.pH) for k in ks])
-        bg = np.concatenate([background_M(plans[k], Tk) for k, Tk in zip(ks, blocks)])
+        bg = np.concatenate([background_M(plans[k], Tk) for k, Tk in zip(ks, blocks, strict=True)])
         I0 = np.concatenate([_start_I(plans[k], grids[k], starts[k] if starts is not None else None) for k in ks])
         Tc = np.concatenate([np.full(len(grids[k]), plans[k].sample.temperature_C) for k in ks])
         labels = [f"{plans[k].method.strategy.volume_name} volume {v:.4f} mL "
@@ -548,7 +548,7 @@ def _pH_drifts(live: Sequence[Plan], coarse: Sequence[Equilibrium], V_eps: Seque
             V0 = p.sample.volume_mL
             T[:, iH] = T_H0 * V0 / (V0 + V) + TITRANT_PROTONS * p.method.titrant_conc_M * V / (V0 + V)
             blocks.append(T)
-        bg = np.concatenate([background_M(live[k], T) for k, T in zip(ks, blocks)])
+        bg = np.concatenate([background_M(live[k], T) for k, T in zip(ks, blocks, strict=True)])
         Tc = np.concatenate([np.full(2, live[k].sample.temperature_C) for k in ks])
         restart = np.tile([True, False], len(ks))
         I0 = np.concatenate([_start_I(live[k], np.array([0.0, V_eps[k]]), coarse[k]) for k in ks])

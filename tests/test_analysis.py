@@ -48,9 +48,9 @@ def al():
     return r, analyse(r)
 
 
-def _log_cK(metal, method, conc, sample=parse(BI_PB, "bi.yaml").sample):
+def _log_cK(metal, method, conc):
     """log(c K') on the medium's side reactions: the aliquot's ionic strength and the Na+ at equivalence."""
-    cond, alkali = side_reactions(sample, method)
+    cond, alkali = side_reactions(parse(BI_PB, "bi.yaml").sample, method)
     return float(conditional_constant(metal, "EDTA", method.pH, method.ligand_totals(), cond, alkali).log_K_conditional
                  ) + math.log10(conc)
 

@@ -11,7 +11,6 @@ from optimiser.method import Method, Sample
 from optimiser.scenario import parse
 from optimiser.titration import plan, simulate
 
-
 # --- the ion pairs against published values ---------------------------------------------------------------------
 
 @pytest.mark.parametrize("ion, published, source", [
@@ -35,8 +34,8 @@ def _apparent_pKa6(alkali: dict[str, float]) -> float:
     pH = 10.2
     eq = solve(system, totals, pH=pH, ionic_strength_M=0.1, pH_scale="concentration")
     names = system.species
-    c = dict(zip(names, eq.c[0]))
-    hy = next(s for s, k in zip(names, system.constants) if k is not None and k.stoichiometry == {"EDTA": 1, H: 1})
+    c = dict(zip(names, eq.c[0], strict=True))
+    hy = next(s for s, k in zip(names, system.constants, strict=True) if k is not None and k.stoichiometry == {"EDTA": 1, H: 1})
     free_like = c["EDTA"] + sum(c[f"{m}EDTA"] for m in ions)
     return pH + float(np.log10(c[hy] / free_like))
 
