@@ -19,7 +19,8 @@ the other species. The spectator anions bind nothing and enter the solve as its 
 (:func:`background_M`). The solver then computes the ionic strength of each point from its species
 (``ionic_strength_M=None``). At a fixed pH the protons the titrant releases are taken up by the buffer without
 being followed (the buffer's forms keep the pH's ratio): the ionic strength is then off by at most the
-concentration of the complex formed, in either direction.
+concentration of the complex formed, in either direction. Likewise the OH- that hydroxo complexes and hydroxide
+solids take from a strong base is not added to its cation (at most twice the metals precipitated).
 
 No reagent is named here: what an ion is and which reagent brings it is read from the data (formulas, recipe kinds,
 ``counter_ions``).
