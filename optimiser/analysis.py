@@ -22,9 +22,10 @@ from .conditional import Conditions, conditional_constant, feasibility
 from .constants import database
 from .errors import DataError, MissingConstantError
 from .method_document import MethodDocument, method_document
-from .method import Method, as_titrated
+from .method import Method
 from .procedure import BenchMethod, bench_method
-from .objectives import COTITRATED_SHARE_MAX, PH_DRIFT_MAX, READABLE_DROPS
+from .medium import side_reactions
+from .objectives import COTITRATED_SHARE_MAX, PH_DRIFT_MAX, READABLE_DROPS, TABLE_IONIC_STRENGTH_M
 from .readout import CATEGORIES, DROP_mL, budget_label
 from .reagents import HAZARD_NAMES, catalogue
 from .report.text import share_percent, short_name
@@ -184,10 +185,12 @@ def metal_order(scenario: Scenario) -> tuple[str, ...]:
     return tuple(s.analyte) + tuple(m for m in s.metals if m not in s.analyte)
 
 
-def _conditions(scenario: Scenario, method: Method | None = None) -> Conditions:
-    """The sample's ionic strength, at the temperature ``method`` titrates at (the sample's without a method)."""
-    s = scenario.sample
-    return Conditions(s.ionic_strength_M, s.temperature_C if method is None else as_titrated(s, method).temperature_C)
+def _conditions(scenario: Scenario, method: Method | None) -> tuple[Conditions, dict[str, float]]:
+    """The side-reaction picture's conditions and alkali ions for ``method`` (:func:`optimiser.medium.side_reactions`);
+    without a method, the handbook tables' ionic strength and no alkali ions."""
+    if method is None:
+        return Conditions(TABLE_IONIC_STRENGTH_M, scenario.sample.temperature_C), {}
+    return side_reactions(scenario.sample, method)
 
 
 def analyte_feasibility(scenario: Scenario, method: Method) -> float:
@@ -199,7 +202,8 @@ def analyte_feasibility(scenario: Scenario, method: Method) -> float:
     """
     s = scenario.sample
     ligands = method.ligand_totals()
-    return min(float(feasibility(conditional_constant(a, method.titrant, method.pH, ligands, _conditions(scenario, method))
+    cond, alkali = _conditions(scenario, method)
+    return min(float(feasibility(conditional_constant(a, method.titrant, method.pH, ligands, cond, alkali)
                                  .log_K_conditional, s.metals[a])) for a in s.analyte)
 
 
@@ -273,9 +277,10 @@ def log_K_table(result: SearchResult) -> LogKTable:
     titrant = method.titrant if method else sc.search.titrants[0]  # as the search's log K' curves
     ligands = method.ligand_totals() if method else {}
     rows = []
+    cond, alkali = _conditions(sc, method)
     for metal in metal_order(sc):
         try:
-            vals = tuple(conditional_constant(metal, titrant, pHs, ligands, _conditions(sc, method)).log_K_conditional.tolist())
+            vals = tuple(conditional_constant(metal, titrant, pHs, ligands, cond, alkali).log_K_conditional.tolist())
         except MissingConstantError:
             vals = (None,) * len(pHs)
         rows.append(LogKRow(metal, "analyte" if metal in sc.sample.analyte else "interferent", sc.sample.metals[metal] * 1000,

@@ -62,6 +62,9 @@ class _Writer:
         self.cT = method.titrant_conc_M
         self.rows: list[StockSolution] = []
         self.adds: list[Addition] = [Addition("sample", self.V0, None, f"{self.V0:g} mL of sample")]
+        # the buffer's forms are read at the ionic strength the titration starts at (computed from the whole recipe)
+        I_curve = getattr(t, "ionic_strength_M", ())
+        self.I = float(I_curve[0]) if len(I_curve) else scenario.sample.ionic_strength_M
 
     # -- stocks -----------------------------------------------------------------------------------------------
     def titrant_stock(self) -> str:
@@ -85,7 +88,7 @@ class _Writer:
             return f"Add the buffer ({buf.name}) and {adjust}."
         c = st.conc_M[0]
         if buf.ligand:
-            f_base = float(ligand_fractions(buf.ligand, self.m.pH, Conditions(s.ionic_strength_M, s.temperature_C))[0])
+            f_base = float(ligand_fractions(buf.ligand, self.m.pH, Conditions(self.I, s.temperature_C))[0])
             text = buffer_per_litre(kind, st, buf.recipe, c, f_base)
             label = f"{st.name or buf.name}, {c:g} mol/L {buf.ligand}, for pH {self.m.pH:.2f}"
             v = graduated_mL(self.m.buffer_total_M * self.V0 / c)
@@ -95,10 +98,10 @@ class _Writer:
             label = f"{st.name or buf.name} {c:g} mol/L"
             if kind == STRONG_BASE:
                 from .procedure import hydroxide_in_solids_mmol
-                mmol = (self.V0 * free_hydroxide_M(self.m.pH, s.ionic_strength_M, s.temperature_C)
+                mmol = (self.V0 * free_hydroxide_M(self.m.pH, self.I, s.temperature_C)
                         + hydroxide_in_solids_mmol(self.t))
             elif kind == STRONG_ACID:
-                free_H = self.V0 * free_hydrogen_M(self.m.pH, s.ionic_strength_M, s.temperature_C)
+                free_H = self.V0 * free_hydrogen_M(self.m.pH, self.I, s.temperature_C)
                 mmol = max(free_H - s.acid_M * self.V0, 0.0)  # the sample's own acid counts towards it
             else:
                 mmol = 0.0

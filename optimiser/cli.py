@@ -96,7 +96,7 @@ def _integer(text: str, what: str, lo: int, hi: int) -> int:
 
 
 def _format_option(parser: argparse.ArgumentParser) -> None:
-    from .report import DEFAULT_FORMAT, FORMATS
+    from .report import DEFAULT_FORMAT
     parser.add_argument("--format", action="append", metavar="FORMAT",
                         help="report format: {formats} (default " + DEFAULT_FORMAT + "); several as html,md,pdf or by "
                              "repeating the option; html is the full report, md and pdf the method as a laboratory "

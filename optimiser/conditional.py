@@ -239,8 +239,22 @@ class ConditionalConstant:
         return self.log_K - self.log_alpha_Y - self.log_alpha_M + self.log_alpha_MY
 
 
+def log_alpha_Y_with_alkali(titrant: str, pH: ArrayLike, alkali: Mapping[str, ArrayLike], cond: Conditions = Conditions()
+                            ) -> Array:
+    """log10 alpha_Y = log10(alpha_Y(H) + sum_N K_NY [N+]) with the alkali ions' pairs of the titrant (NaY3-, KY3-;
+    the ions of ``alkali``, id -> free concentration [mol/L]); alpha_Y(H) alone where none has a constant."""
+    db = database()
+    terms = 10.0 ** log_alpha_Y(titrant, pH, cond)
+    for ion, c in alkali.items():
+        for k in db.complexes.get((db.metal(ion), titrant), ()):
+            if H not in k.stoichiometry:
+                terms = terms + 10.0 ** cond.log_K([k])[..., 0] * np.asarray(c, dtype=float)
+    return np.log10(terms)
+
+
 def conditional_constant(metal: str, titrant: str, pH: ArrayLike, ligands: Mapping[str, ArrayLike] | None = None,
-                         cond: Conditions = Conditions()) -> ConditionalConstant:
+                         cond: Conditions = Conditions(), alkali: Mapping[str, ArrayLike] | None = None
+                         ) -> ConditionalConstant:
     """Conditional formation constant log K'_MY across pH and ligand totals.
 
     Parameters
@@ -255,6 +269,9 @@ def conditional_constant(metal: str, titrant: str, pH: ArrayLike, ligands: Mappi
         Ligand -> total concentration [mol/L] (e.g. ``{"NH3": 0.1}`` for NH3 + NH4+ = 0.1 M).
     cond : Conditions
         Ionic strength, temperature and pH scale.
+    alkali : mapping, optional
+        Alkali ion id -> concentration [mol/L] (the medium's Na+ and K+, :mod:`optimiser.medium`): their pairs
+        with the titrant enter alpha_Y. None: a medium that does not bind the titrant.
 
     Examples
     --------
@@ -267,11 +284,13 @@ def conditional_constant(metal: str, titrant: str, pH: ArrayLike, ligands: Mappi
     used = [main, *side, *db.protonation[titrant], *db.hydrolysis.get(metal, ())]
     for lig in ligands or {}:
         used += list(_ml_constants(metal, lig)) + list(db.protonation.get(lig, ()))
+    for ion in alkali or {}:
+        used += list(db.complexes.get((db.metal(ion), titrant), ()))
     T = float(np.max(np.asarray(cond.temperature_C)))
     out = ConditionalConstant(
         metal=metal, titrant=titrant, pH=pH,
         log_K=np.broadcast_to(cond.log_K([main])[..., 0], np.broadcast(pH, np.asarray(cond.ionic_strength_M)).shape).astype(float),
-        log_alpha_Y=log_alpha_Y(titrant, pH, cond),
+        log_alpha_Y=log_alpha_Y_with_alkali(titrant, pH, alkali, cond) if alkali else log_alpha_Y(titrant, pH, cond),
         log_alpha_M=log_alpha_M(metal, pH, ligands, cond),
         log_alpha_MY=log_alpha_MY(metal, titrant, pH, cond),
         constant=main,

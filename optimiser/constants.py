@@ -32,6 +32,10 @@ H = "H+"  # the proton as a component
 # :class:`optimiser.conditional.Conditions`). Davies is fit to about 0.5 M and is no guide beyond 1 M; van 't Hoff
 # with a constant enthalpy is kept to liquid water at a bench.
 IONIC_STRENGTH_MAX_M = 1.0
+# Where the Davies equation itself is trusted: to about I = 0.5 M (the chemistry primer, /work/shared/DOMAIN.md; Davies,
+# Ion Association, 1962, and Stumm and Morgan, Aquatic Chemistry, 3rd ed., 1996, Table 3.3, both from memory). A
+# titration whose computed ionic strength passes it carries a warning (optimiser.medium, findings "davies_range").
+DAVIES_LIMIT_M = 0.5
 TEMPERATURE_RANGE_C = (0.0, 90.0)
 
 

@@ -295,11 +295,14 @@ _STOCK: Schema = {
 SCHEMAS: dict[tuple[str, str | None], Schema] = {
     ("metals.yaml", None): {
         "id": Key(str), "element": Key(str), "charge": Key(int), "name": Key(str), "aliases": _ALIASES,
-        "internal": optional(bool, False), "binds_titrant": optional(bool, True), "slow_with_titrant": optional(bool, False)},
+        "internal": optional(bool, False), "binds_titrant": optional(bool, True), "slow_with_titrant": optional(bool, False),
+        "counter_ion": optional(bool, False)},
     ("reagents.yaml", "ligands"): {"id": Key(str), "charge": Key(int), "aliases": _ALIASES},
     ("reagents.yaml", "titrants"): {
         "id": Key(str), "name": Key(str), "charge": Key(int), "formula": Key(str), "salt": Key(str), "hazard": _HAZARD,
-        "cautions": _TEXTS, "complexity": Key(float), "search_default": _SEARCH_DEFAULT, "aliases": _ALIASES},
+        "cautions": _TEXTS, "complexity": Key(float), "search_default": _SEARCH_DEFAULT, "aliases": _ALIASES,
+        # counter-ions per mole of titrant where the formula weighed does not hold them (a free acid dissolved with NaOH)
+        "counter_ions": optional(dict, {}, items=Key(float))},
     ("reagents.yaml", "buffers"): {
         "id": Key(str), "name": Key(str), "ligand": Key(str, nullable=True), "pH_range": _NUMBER_PAIR,
         "recipe": Key(dict, keys={

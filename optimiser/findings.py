@@ -107,6 +107,22 @@ WORDING: dict[str, Callable[[Mapping[str, Any]], str]] = {
     "slow_direct": lambda v: (f"{_join(v['metals'])} {agree(v['metals'], 'reacts', 'react')} too slowly with "
                               f"{v['titrant']} at room temperature for a direct titration: use a back-titration "
                               "(common practice)."),
+    # the medium (optimiser.medium)
+    "medium": lambda v: ("Ionic strength computed at each point from the whole recipe: "
+                         f"{v['low']:.3g} to {v['high']:.3g} M along the curve"
+                         + (f" (with {v['background']:.3g} M of the sample's own background electrolyte)"
+                            if v['background'] > 0 else "")
+                         + "; alkali ions (their published ion pairs with the titrant are in the equilibrium): "
+                         + (", ".join([f"{m}+ {1000 * c:.3g} mmol/L from the sample and reagents" for m, c in v['ions'].items()
+                                       if c > 0]
+                                      + [f"{n:g} {m}+ per {v['titrant']} from the titrant"
+                                         for m, n in v['titrant_ions'].items()]) or "none")
+                         + (f" (no published {', '.join(m + '+' for m in v['unpaired'])} pair of {v['titrant']}: taken as "
+                            "not binding)" if v.get('unpaired') else "")
+                         + "; the sample's metals are taken as nitrates or chlorides."),
+    "davies_range": lambda v: (f"The ionic strength reaches {v['ionic_strength']:.2f} M, beyond about {v['limit']:g} M where "
+                               "the Davies equation holds: activity corrections, and every log K' and pM, are uncertain there "
+                               "(use less buffer, masking agent or alkali, or dilute the sample)."),
     # read-out
     "indicator_unbound": lambda v: (f"{v['indicator']} is hardly bound by the metals at pH {v['pH']:.2f} "
                                     f"({100 * v['bound']:.0f} % bound): no visible colour change is predicted."),

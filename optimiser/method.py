@@ -12,7 +12,7 @@ from dataclasses import dataclass, field, replace
 
 from .anions import ligands as anion_ligands
 from .conditional import check_concentration, check_pH
-from .constants import database
+from .constants import IONIC_STRENGTH_MAX_M, database
 from .errors import InputError
 from .reagents import Buffer, Indicator, MaskingAgent, Titrant, catalogue
 
@@ -30,7 +30,10 @@ class Sample:
     analyte : tuple of str
         The metal or metals determined (summed, e.g. ("Ca", "Mg") for total hardness).
     ionic_strength_M : float
-        [mol/L].
+        The ionic strength of the sample matrix's own electrolyte that the model does not otherwise know (not its
+        metals, acid or ``alkali_M``), in the aliquot [mol/L]; 0 for the metals' salts in water. The ionic strength
+        of each point of a titration is computed from the whole recipe with this as its background
+        (:mod:`optimiser.medium`).
     temperature_C : float
         [degC].
     acid_M : float
@@ -40,16 +43,20 @@ class Sample:
         :mod:`optimiser.anions`) -> total in the aliquot [mol/L].
     anion_notes : tuple of str
         The assumptions behind the anions as given (alkalinity taken as hydrogencarbonate, ...).
+    alkali_M : Mapping[str, float]
+        Counter-ion id (``Na``, ``K``) -> the matrix's own alkali ions in the aliquot [mol/L] (with a monovalent
+        anion); they bind the titrant like the recipe's.
     """
 
     volume_mL: float
     metals: Mapping[str, float]
     analyte: tuple[str, ...]
-    ionic_strength_M: float = 0.1
+    ionic_strength_M: float = 0.0
     temperature_C: float = 25.0
     acid_M: float = 0.0
     anions: Mapping[str, float] = field(default_factory=dict)
     anion_notes: tuple[str, ...] = ()
+    alkali_M: Mapping[str, float] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         db = database()
@@ -72,6 +79,17 @@ class Sample:
                 raise InputError(f"unknown sample anion {a!r}; known: {', '.join(known)}")
         object.__setattr__(self, "anions", {a: float(check_concentration(c, f"concentration of {a}"))
                                             for a, c in self.anions.items()})
+        if not 0.0 <= self.ionic_strength_M <= IONIC_STRENGTH_MAX_M:
+            raise InputError(f"the sample's background ionic strength must be between 0 and {IONIC_STRENGTH_MAX_M:g} M; "
+                             f"got {self.ionic_strength_M}")
+        alkali = {}
+        for m, c in self.alkali_M.items():
+            mid = db.metal(m)
+            if not db.metals[mid].get("counter_ion"):
+                allowed = ", ".join(k for k, row in db.metals.items() if row.get("counter_ion"))
+                raise InputError(f"{m} is not an alkali ion of the matrix (allowed: {allowed})")
+            alkali[mid] = float(check_concentration(c, f"concentration of {m} in the matrix"))
+        object.__setattr__(self, "alkali_M", alkali)
 
     @property
     def interferents(self) -> tuple[str, ...]:

@@ -16,7 +16,7 @@ import numpy as np
 
 from .conditional import Conditions, conditional_constant, feasibility
 from .errors import MissingConstantError
-from .method import titration_temperature_C
+from .medium import side_reactions
 from .reagents import HAZARD_NAMES, catalogue
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -207,13 +207,13 @@ def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) ->
     ligands. None when no interferent is left.
     """
     s = scenario.sample
-    cond = Conditions(s.ionic_strength_M, titration_temperature_C(s, catalogue().indicator(c.indicator)))
+    cond, alkali = side_reactions(s, t.method if t is not None else c.method(scenario))
     ligands = c.ligand_totals()
 
     def log_cK(metal: str, conc: float) -> float:
         if conc <= 0:
             return -math.inf
-        k = conditional_constant(metal, c.titrant, c.pH, ligands, cond).log_K_conditional
+        k = conditional_constant(metal, c.titrant, c.pH, ligands, cond, alkali).log_K_conditional
         return float(feasibility(k, conc))
 
     try:
@@ -233,19 +233,21 @@ def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) ->
     return None if worst == -math.inf else analyte - worst
 
 
+TABLE_IONIC_STRENGTH_M = 0.1  # where no method is chosen: the ionic strength of the handbook tables (common practice)
+
+
 def conditional_curves(scenario: Scenario, c: Candidate | None, pH: np.ndarray) -> dict[str, np.ndarray]:
     """log K' of every metal with the method's titrant across pH (with its buffer and masking ligands), and without
     the ligands. Without a method, the scenario's first titrant and no ligands."""
     s = scenario.sample
-    T = titration_temperature_C(s, catalogue().indicator(c.indicator)) if c is not None else s.temperature_C
-    cond = Conditions(s.ionic_strength_M, T)
+    cond, alkali = side_reactions(s, c.method(scenario)) if c is not None else (Conditions(TABLE_IONIC_STRENGTH_M, s.temperature_C), {})
     titrant = c.titrant if c else scenario.search.titrants[0]
     ligands = c.ligand_totals() if c is not None else {}
     out = {"pH": pH}
     for m in s.metals:
         for lig_set, suffix in ((ligands, ""), ({}, " (no ligands)")):
             try:
-                out[m + suffix] = conditional_constant(m, titrant, pH, lig_set, cond).log_K_conditional
+                out[m + suffix] = conditional_constant(m, titrant, pH, lig_set, cond, alkali).log_K_conditional
             except MissingConstantError:
                 out[m + suffix] = np.full_like(pH, np.nan)
     return out

@@ -6,12 +6,11 @@ reagent's data entry declares (the buffer's solutions and salts). No mode or rea
 """
 from __future__ import annotations
 
-import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from .conditional import Conditions, ligand_fractions
-from .constants import H, database, davies_A, davies_f, log_K_at
+from .constants import H
+from .medium import buffer_forms, free_hydrogen_M, free_hydroxide_M
 from .method import Method
 from .reagents import HAZARD_NAMES, Buffer, molar_mass
 from .scenario import Scenario
@@ -26,41 +25,6 @@ BASE_AND_STRONG_ACID = "base_and_strong_acid"  # hexamine + HCl
 STRONG_BASE = "strong_base"  # NaOH only, no complexing buffer
 STRONG_ACID = "strong_acid"  # HNO3 only, no complexing buffer
 PH_METER_ONLY = "pH_meter_only"  # an entry that declares nothing to weigh or measure
-
-
-def log_gamma_1(ionic_strength_M: float, temperature_C: float) -> float:
-    """log10 of the activity coefficient of a singly charged ion (Davies, :func:`optimiser.constants.davies_f`)."""
-    return float(-davies_A(temperature_C) * davies_f(ionic_strength_M))
-
-
-def free_hydroxide_M(pH: float, ionic_strength_M: float, temperature_C: float) -> float:
-    """[OH-] [mol/L] at a glass-electrode pH (-log a(H+)) at the sample's ionic strength and temperature.
-
-    .. math:: [\\mathrm{OH^-}] = K_w(T) / (a_{\\mathrm{H^+}} \\gamma_{\\mathrm{OH^-}})
-
-    with Kw from ``water.csv`` moved to T by van 't Hoff (:func:`optimiser.constants.log_K_at` at I = 0) and
-    gamma from the Davies equation.
-
-    Examples
-    --------
-    At 25 degC and I = 0.1 M (pKw 13.997, gamma 0.781), pH 12 needs about 12.9 mmol/L of free hydroxide:
-
-    >>> round(free_hydroxide_M(12.0, 0.1, 25.0) * 1000, 1)
-    12.9
-    """
-    w = database().water
-    dH = math.nan if w.dH_kJ_mol is None else w.dH_kJ_mol
-    log_Kw = float(log_K_at(w.log_K, w.delta_z2, w.ionic_strength_M, w.temperature_C, dH, 0.0, temperature_C))
-    return 10.0 ** (pH + log_Kw - log_gamma_1(ionic_strength_M, temperature_C))
-
-
-def free_hydrogen_M(pH: float, ionic_strength_M: float, temperature_C: float) -> float:
-    """[H+] [mol/L] at a glass-electrode pH: a(H+) / gamma(H+), gamma from the Davies equation.
-
-    >>> round(free_hydrogen_M(2.0, 0.1, 25.0) * 1000, 2)
-    12.8
-    """
-    return 10.0 ** (-pH - log_gamma_1(ionic_strength_M, temperature_C))
 
 
 _KINDS = {  # the data's recipe kinds (reagents.yaml, ``recipe.kind``) -> the recipe writers below
@@ -145,10 +109,9 @@ def buffer_recipe(buffer: Buffer, total_M: float, pH: float, V0_mL: float, ionic
     """
     r = RecipeInput(buffer, total_M, pH, V0_mL, ionic_strength_M, temperature_C, extra_OH_mmol=extra_OH_mmol)
     if buffer.ligand:
-        base_frac = float(ligand_fractions(buffer.ligand, pH, Conditions(ionic_strength_M, temperature_C))[0])
-        n_tot = total_M * V0_mL  # mmol in the aliquot
-        r = RecipeInput(buffer, total_M, pH, V0_mL, ionic_strength_M, temperature_C, n_tot * base_frac,
-                        n_tot * (1 - base_frac), extra_OH_mmol)
+        forms = buffer_forms(buffer, total_M, pH, ionic_strength_M, temperature_C) * V0_mL  # mmol in the aliquot
+        r = RecipeInput(buffer, total_M, pH, V0_mL, ionic_strength_M, temperature_C, float(forms[0]), float(forms[1:].sum()),
+                        extra_OH_mmol)
     make = _RECIPES.get(recipe_kind(buffer))
     steps = [make(r)] if make is not None else []
     steps.append(f"adjust to pH {pH:.2f} with a calibrated pH meter")
@@ -273,8 +236,8 @@ def bench_method(scenario: Scenario, method: Method, t: Titration, margin: float
     buf, tit = method.buffer_info, method.titrant_info
     extra_OH = hydroxide_in_solids_mmol(t) if recipe_kind(buf) == STRONG_BASE else 0.0
     total_buf = method.buffer_total_M if buf.ligand else 0.0
-    recipe = buffer_recipe(buf, total_buf, method.pH, V0, scenario.sample.ionic_strength_M, scenario.sample.temperature_C,
-                           extra_OH)
+    I_start = float(t.ionic_strength_M[0]) if len(t.ionic_strength_M) else scenario.sample.ionic_strength_M
+    recipe = buffer_recipe(buf, total_buf, method.pH, V0, I_start, scenario.sample.temperature_C, extra_OH)
     masking = masking_doses(method, V0)
     formula = result_formula(scenario, method)
     written = written_method(scenario, method, t, formula)

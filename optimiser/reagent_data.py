@@ -48,7 +48,7 @@ def _built(file: str, section: str | None, make) -> dict[str, Any]:
 
 def _titrant(d: Mapping[str, Any]) -> Titrant:
     return Titrant(d["id"], d["name"], d["formula"], d["salt"], d["hazard"], tuple(d["cautions"]), d["complexity"],
-                   d["search_default"], tuple(d["aliases"]))
+                   d["search_default"], tuple(d["aliases"]), tuple((k, float(v)) for k, v in d["counter_ions"].items()))
 
 
 def _buffer(d: Mapping[str, Any]) -> Buffer:
@@ -171,6 +171,12 @@ def catalogue() -> Catalogue:
         _check_metal(s.id, "reagents.yaml", f"standards/{s.id}", "id")
     for p in cat.primary_standards.values():
         _check_metal(p.id, "reagents.yaml", f"primary_standards/{p.id}", "id")
+    for t in cat.titrants.values():
+        for m, _ in t.counter_ions:
+            _check_metal(m, "reagents.yaml", f"titrants/{t.id}", "counter_ions")
+            if not database().metals[m].get("counter_ion"):
+                raise DataError(f"{m!r} is not a counter-ion (metals.yaml: counter_ion)", "reagents.yaml",
+                                f"titrants/{t.id}", "counter_ions")
     _check_ligands(cat)
     _check_aliases(cat)
     _check_safety_rules(cat)

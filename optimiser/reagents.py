@@ -65,6 +65,9 @@ class Titrant:
         Whether a scenario that lists no titrants searches it.
     aliases : tuple of str
         Other spellings a user may type (``reagents.yaml``), matched as :func:`spelling` reduces them.
+    counter_ions : tuple of (str, float)
+        Counter-ions per mole of titrant that its formula does not hold (a free acid dissolved with NaOH), as
+        (metal id, mol/mol); the formula's own Na and K are counted by :mod:`optimiser.medium`.
     """
 
     id: str
@@ -76,6 +79,7 @@ class Titrant:
     complexity: float = 0.0
     search_default: bool = True
     aliases: tuple[str, ...] = ()
+    counter_ions: tuple[tuple[str, float], ...] = ()
 
     def __post_init__(self) -> None:
         _check_hazard(f"titrant {self.id}", self.hazard)

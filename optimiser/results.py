@@ -131,7 +131,8 @@ def titration_json(t: Titration, every: int = 1) -> dict[str, Any]:
         "mass_balance_error": float(f"{t.mass_balance_error:.2e}"),
         "curve": {"volume_mL": [_r(v) for v in V[::every]],
                   "pM": {m: [_r(v) for v in arr[::every]] for m, arr in t.pM.items()},
-                  "indicator_turned": [_r(v) for v in t.turned[::every]]},
+                  "indicator_turned": [_r(v) for v in t.turned[::every]],
+                  "ionic_strength_M": [_r(v, 6) for v in t.ionic_strength_M[::every]]},
     }
 
 

@@ -41,7 +41,7 @@ MODES = strategy_ids()  # the strategies a search may use (optimiser.strategies)
 _SCHEMA: dict[str, Any] = {
     "name": str, "description": str,
     "sample": {"volume": None, "ionic_strength": None, "temperature": None, "matrix": str, "acid": None, "pH": None,
-               "anions": dict},
+               "anions": dict, "alkali_ions": dict},
     "analyte": {"name": None, "metals": dict, "report_as": str},
     "interferents": dict,
     "titrant": {"concentration": None, "burette": None},
@@ -278,7 +278,7 @@ def _conditions(r: _Reader) -> tuple[float, float, float]:
     if "volume" not in s:
         raise r.error("sample.volume is required (for example 50 mL)", ("sample",))
     V0 = r.ranged(("sample", "volume"), volume_mL, *SAMPLE_VOLUME_RANGE_mL, "mL")
-    I = 0.1
+    I = 0.0  # the matrix's own background electrolyte (optimiser.medium computes the ionic strength of each point)
     if "ionic_strength" in s:
         I = r.ranged(("sample", "ionic_strength"), lambda v: molarity(v, "ionic strength"), 0.0, IONIC_STRENGTH_MAX_M,
                      "M", at_most=True)
@@ -330,6 +330,33 @@ def _anions(r: _Reader) -> tuple[dict[str, float], tuple[str, ...]]:
         totals[ligand] = c
     notes = tuple(dict.fromkeys(anion_input(str(n)).note for n in block if anion_input(str(n)).note))
     return totals, notes
+
+
+def _alkali(r: _Reader) -> dict[str, float]:
+    """The sample matrix's own alkali ions [mol/L], from ``sample.alkali_ions`` (ion: concentration, Na and K)."""
+    block = r.doc["sample"].get("alkali_ions") or {}
+    db = database()
+    lo, hi = CONCENTRATION_RANGE_M
+    out: dict[str, float] = {}
+    for m, v in block.items():
+        key = ("sample", "alkali_ions", m)
+        try:
+            mid = db.metal(str(m))
+        except InputError as exc:
+            raise r.error(str(exc), key + ("<key>",)) from None
+        if not db.metals[mid].get("counter_ion"):
+            allowed = ", ".join(k for k, row in db.metals.items() if row.get("counter_ion"))
+            raise r.error(f"{m} is not an alkali ion (allowed: {allowed})", key + ("<key>",))
+        if mid in out:
+            raise r.error(f"{mid} is given twice", key + ("<key>",))
+        try:
+            c = concentration_M(v, mid)
+        except InputError as exc:
+            raise r.error(f"{_dotted(key)}: {exc}", key) from None
+        if not lo <= c <= hi:
+            raise r.error(f"{_dotted(key)} must be between {lo:g} and {hi:g} mol/L; got {c:.4g} mol/L", key)
+        out[mid] = c
+    return out
 
 
 def _add_metals(r: _Reader, block: Mapping, key: tuple, metals: dict[str, float]) -> list[str]:
@@ -526,7 +553,7 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
     methods = listed_methods.read(r, cT)
     try:
         sample = Sample(volume_mL=V0, metals=metals, analyte=tuple(analyte), ionic_strength_M=I, temperature_C=T,
-                        acid_M=_acid(r), anions=anions, anion_notes=anion_notes)
+                        acid_M=_acid(r), anions=anions, anion_notes=anion_notes, alkali_M=_alkali(r))
     except InputError as exc:
         raise r.error(str(exc), ("analyte",)) from None
     return Scenario(name=name, description=description, sample=sample, analyte_label=label, report_as=report_as,

@@ -13,7 +13,8 @@ from conftest import AL_BACK
 
 from optimiser import report
 from optimiser.analysis import analyse, analyte_feasibility, safety
-from optimiser.conditional import Conditions, conditional_constant
+from optimiser.conditional import conditional_constant
+from optimiser.medium import side_reactions
 from optimiser.method import Method
 from optimiser.scenario import parse
 from optimiser.search import run_search
@@ -35,7 +36,7 @@ search:
 
 
 CHEMISTRY = {"conditional", "constants", "equilibrium", "kernel", "titration", "readout", "reagents", "search", "method",
-             "pretreatment", "strategies", "findings", "procedure", "units", "scenario", "data"}
+             "pretreatment", "strategies", "findings", "procedure", "units", "scenario", "data", "medium"}
 
 
 @pytest.fixture(scope="module")
@@ -51,8 +52,10 @@ def al():
 
 
 def _log_cK(metal, method, conc):
-    cond = Conditions(0.1, 25.0)
-    return float(conditional_constant(metal, "EDTA", method.pH, method.ligand_totals(), cond).log_K_conditional) + math.log10(conc)
+    """log(c K') on the medium's side reactions: the aliquot's ionic strength and the Na+ at equivalence."""
+    cond, alkali = side_reactions(parse(BI_PB, "bi.yaml").sample, method)
+    return float(conditional_constant(metal, "EDTA", method.pH, method.ligand_totals(), cond, alkali).log_K_conditional
+                 ) + math.log10(conc)
 
 
 def test_feasibility_and_margin_share_one_concentration(bi):

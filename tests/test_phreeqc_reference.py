@@ -31,6 +31,10 @@ CASES = [
      {"Ba": 0.001, "Pb": 0.002, "sulfate": 0.005, "chloride": 0.01, "acetate": 0.05}, 5.0, True),
     ("calcium phosphate pH 12.5", ("Ca",), ("phosphate", "carbonate"), {"Ca": 0.002, "phosphate": 0.001, "carbonate": 1e-4},
      12.5, True),
+    # the medium's Na+ and K+ as components (their pairs NaY3-, KY3-): the disodium titrant's Na+ past equivalence
+    ("Ca-EDTA with Na+ and K+ pH 10", ("Ca", "Na", "K"), ("EDTA",), {"Ca": 0.01, "Na": 0.024, "K": 0.05, "EDTA": 0.012},
+     10.0, False),
+    ("Mg-EDTA with Na+ pH 12", ("Mg", "Na"), ("EDTA",), {"Mg": 0.002, "Na": 0.03, "EDTA": 0.003}, 12.0, False),
 ]
 
 

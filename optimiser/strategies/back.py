@@ -56,9 +56,12 @@ class BackTitration(Strategy):
         inert = np.zeros(len(comps))
         if plan.slow:
             from ..equilibrium import solve  # the compiled solver loads only when a curve is planned
+            from ..medium import background_M
 
-            first = solve(system, plan.totals_before(np.array([V_x])), pH=method.pH,
-                          ionic_strength_M=sample.ionic_strength_M, temperature_C=sample.temperature_C)
+            T_x = plan.totals_before(np.array([V_x]))
+            first = solve(system, T_x, pH=method.pH, ionic_strength_M=None,
+                          background_ionic_strength_M=background_M(plan, T_x), temperature_C=sample.temperature_C,
+                          ionic_strength_start_M=plan.medium.ionic_strength_M)
             for m in plan.slow:
                 bound = first.bound(m, method.titrant)[0]
                 inert[comps.index(m)] += bound

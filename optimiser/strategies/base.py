@@ -12,6 +12,7 @@ from ..findings import Finding
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..equilibrium import ChemicalSystem, Equilibrium
+    from ..medium import Medium
     from ..method import Method, Sample
     from ..pretreatment import Prepared
 
@@ -50,6 +51,9 @@ class Plan:
         Component -> amount held in inert complexes, taken out of the equilibrium [mmol].
     V : array
         The coarse curve's volumes [mL].
+    medium : Medium
+        The recipe's counter-ions and spectator anions (:mod:`optimiser.medium`); Na+ and K+ are components of
+        ``system``, their totals in ``totals``, the spectators the solve's background (``medium.background_M``).
     """
 
     sample: Sample
@@ -70,6 +74,7 @@ class Plan:
     frozen: dict[str, float] = field(default_factory=dict)
     inert_mM: dict[str, float] = field(default_factory=dict)
     V: Array | None = None
+    medium: Medium | None = None
 
 
 def indicator_bound(method: Method, eq: Equilibrium, metals: list[str] | tuple[str, ...]) -> Array:
