@@ -132,3 +132,14 @@ def test_budget_splits_a_standard_metal_that_the_sample_also_holds():
     t = simulate(s, Method(8.3, "ammonia", "EDTA", 0.02, "PAN", mode="back", back_metal="Zn"))
     assert t.budget["cotitration:Zn"] > 0.5
     assert sum(t.budget.values()) == pytest.approx(t.error_percent, abs=1e-6)
+
+
+def test_budget_of_a_back_titration_whose_standard_metal_is_an_analyte():
+    """Total hardness (Ca + Mg) back-titrated with a magnesium standard: the standard's magnesium is not the
+    sample's, so the analyte's parts count only the sample's share of the magnesium complexes; the parts add up to
+    the error (mass balance) and none of them is the standard itself (regression: +50 % 'analyte not yet bound')."""
+    s = Sample(50, {"Ca": 1.6e-3, "Mg": 0.6e-3}, ("Ca", "Mg"))
+    t = simulate(s, Method(10.0, "ammonia", "EDTA", 0.01, "EBT", mode="back", back_metal="Mg"))
+    assert t.error_percent is not None
+    assert sum(t.budget.values()) == pytest.approx(t.error_percent, abs=1e-6)
+    assert all(abs(v) < 5.0 for v in t.budget.values()), t.budget

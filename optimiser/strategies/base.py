@@ -1,7 +1,7 @@
 """The interface every titration strategy implements, and the plan of one simulated curve."""
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -196,14 +196,18 @@ def titrant_parts(plan: Plan, eq: Equilibrium, point: int) -> dict[str, float]:
     return held
 
 
-def analyte_parts(plan: Plan, eq: Equilibrium, point: int, dilution: float) -> tuple[float, float, float]:
+def analyte_parts(plan: Plan, eq: Equilibrium, point: int, dilution: float, sample_share: Mapping[str, float] | None = None
+                  ) -> tuple[float, float, float]:
     """The analyte at ``point``: its amount as the sample holds it (diluted), bound to the titrant, and held by the
-    indicator [mol/L]."""
+    indicator [mol/L]. ``sample_share`` gives, for a metal that is also added (a back-titration standard that is an
+    analyte metal too, e.g. Mg in total hardness), the share of its bound amounts that is the sample's own."""
     sample, method = plan.sample, plan.method
     comps = eq.system.components
+    share = sample_share or {}
     total = sample.n_analyte_mmol / dilution
-    on_titrant = sum(float(eq.bound(method.titrant, a)[point]) for a in sample.analyte if a in comps)
-    on_indicator = sum(float(eq.bound(method.indicator, a)[point]) for a in sample.analyte if a in comps)
+    on_titrant = sum(share.get(a, 1.0) * float(eq.bound(method.titrant, a)[point]) for a in sample.analyte if a in comps)
+    on_indicator = sum(share.get(a, 1.0) * float(eq.bound(method.indicator, a)[point])
+                       for a in sample.analyte if a in comps)
     return total, on_titrant, on_indicator
 
 
@@ -215,17 +219,23 @@ def budget_parts(plan: Plan, eq: Equilibrium, point: int, dilution_mL: float, in
     the analyte's parts bound to the titrant (plus any inert complex) and to the indicator:
     error = sum over interferents of Y_m / A + Y_u / A - (analyte on the indicator) / A - (analyte bound to neither) / A
     - (standard added but not held by the titrant) / A; the parts add up to the error exactly (mass balance).
+
+    Where the sample holds the standard's metal too, the equilibrium cannot tell the sample's atoms from the added
+    ones: its titrant and indicator complexes are split in proportion to the two amounts (also when that metal is an
+    analyte, as magnesium is in total hardness).
     """
-    A, on_titrant, on_indicator = analyte_parts(plan, eq, point, dilution_mL)
+    in_sample = (plan.sample.metals.get(standard, 0.0) * plan.sample.volume_mL / dilution_mL
+                 if standard is not None else 0.0)
+    f_sample = in_sample / (in_sample + standard_added_M) if in_sample > 0 else 0.0
+    share = {standard: f_sample} if standard is not None and standard in plan.sample.analyte else None
+    A, on_titrant, on_indicator = analyte_parts(plan, eq, point, dilution_mL, share)
     inert = inert_mmol / dilution_mL
     held = titrant_parts(plan, eq, point)
     parts = {f"cotitration:{m}": 100.0 * y / A for m, y in held.items()
              if m not in ("unbound", standard) and m not in plan.sample.analyte}
     parts["titrant_unbound"] = 100.0 * held["unbound"] / A
     if standard is not None:
-        # where the sample holds the standard's metal too, the titrant's share of it is split in proportion
-        in_sample = plan.sample.metals.get(standard, 0.0) * plan.sample.volume_mL / dilution_mL
-        from_sample = held[standard] * in_sample / (in_sample + standard_added_M) if in_sample > 0 else 0.0
+        from_sample = held[standard] * f_sample
         if in_sample > 0 and standard not in plan.sample.analyte:
             parts[f"cotitration:{standard}"] = 100.0 * from_sample / A
         parts["standard_unbound"] = -100.0 * (standard_added_M - (held[standard] - from_sample)) / A
