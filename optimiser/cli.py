@@ -496,12 +496,13 @@ def _cmd_run(a) -> int:
 def _listed_lines(result) -> list[str]:
     """One line per method the scenario lists: whether it meets the criteria and is dominated, its error and
     sharpness."""
+    from .report.text import signed_fixed
     lines = []
     for o in getattr(result, "listed", ()):
         e = o.evaluation
         verdict = "meets the criteria" if o.meets_criteria else "fails the criteria"
         dominated = "dominated by the search's front" if o.dominated else "not dominated by the search's front"
-        figures = (f"error after standardisation {e.standardised_error_percent:+.2f} %"
+        figures = (f"error after standardisation {signed_fixed(e.standardised_error_percent, 2)} %"
                    if e.standardised_error_percent is not None else "no end point")
         if e.sharpness_mL is not None:
             figures += f", sharpness {e.sharpness_mL:.3f} mL"

@@ -151,7 +151,12 @@ class ComparisonTable:
     target_percent: float
 
 
-def _num(x: float | None, fmt: str = "{:+.3f}") -> str:
+def _num(x: float | None, fmt: str | None = None) -> str:
+    """A figure for the table: signed to 0.001 (never "-0.000"; :func:`optimiser.report.text.signed_fixed`) or by
+    ``fmt``; "-" where there is none."""
+    from .report.text import signed_fixed
+    if fmt is None:
+        return signed_fixed(x)
     return "-" if x is None or not np.isfinite(x) else fmt.format(x)
 
 
@@ -175,7 +180,7 @@ def _values(scenario: Scenario, e: Evaluation, robust_pH, robust_dose) -> tuple[
     doses = "; ".join(f"{a} {1000 * lo:.3g}-{1000 * hi:.3g} mM" for a, (lo, hi) in robust_dose.items())
     return (
         _num(e.standardised_error_percent), _num(e.error_percent),
-        f"{budget_label(part[0])} {part[1]:+.3f} %" if part else "-",
+        f"{budget_label(part[0])} {_num(part[1])} %" if part else "-",
         ("yes" if all(abs(v) <= target for v in std.values()) else "no") if std else "-",
         sharp, margin, cotit or "no interferent",
         HAZARD_NAMES[e.hazard], f"{complexity_of(e.candidate):g}",

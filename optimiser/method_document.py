@@ -104,7 +104,7 @@ def method_document(scenario: Scenario, t: Titration, m: BenchMethod, meets_crit
                       f"{m.colour_change[1]} at the end point.")
     if m.masking:
         principle_text += " Masking: " + ", ".join(k.name for k in m.masking) + "."
-    err = "-" if m.predicted_error_percent is None else f"{m.predicted_error_percent:+.2f} %"
+    err = "-" if m.predicted_error_percent is None else f"{_signed(m.predicted_error_percent)} %"
     principle = Section("principle", "Principle", (principle_text,
                         f"Predicted titration error {err} before standardisation; the standardisation against the "
                         "analyte by the same method cancels what the analyte alone shows."))
@@ -132,3 +132,9 @@ def method_document(scenario: Scenario, t: Titration, m: BenchMethod, meets_crit
 
 
 __all__ = ["MethodDocument", "Section", "method_document", "working_range"]
+
+
+def _signed(x: float) -> str:
+    """Signed to 0.01, never "-0.00" (as :func:`optimiser.report.text.signed_fixed`)."""
+    text = f"{x:+.2f}"
+    return text if float(text) != 0 else "0.00"
