@@ -29,13 +29,13 @@ from .findings import Finding
 from .method import Method, Sample
 from .pretreatment import Prepared, prepare
 from .readout import DROP_mL, GRADUAL_DROPS
-from .strategies.base import Plan
+from .strategies.base import Carry, Plan
 
 Array = NDArray[np.float64]
 TITRANT_PROTONS = 2  # titrant added as the disodium salt Na2H2Y (common practice)
 
 __all__ = ["Sample", "Method", "Prepared", "prepare", "EndPoint", "Titration", "simulate", "simulate_many", "DROP_mL",
-           "GRADUAL_DROPS"]
+           "GRADUAL_DROPS", "Carry"]
 
 
 @dataclass(frozen=True)
@@ -59,6 +59,12 @@ class EndPoint:
     budget : dict
         The error split by cause [%] (keys worded by :func:`optimiser.readout.budget_label`); the parts add up to
         ``error_percent``. Empty where there is no end point.
+    step : str
+        The step it belongs to, in words ("" for a single titration): a multi-step strategy's conditions.
+    start_mL : float
+        Where the step's curve starts on the titration's combined volume axis [mL] (0 for a single titration).
+    derived : bool
+        True for a result computed from other end points (a determination by difference), not read on a curve.
     """
 
     label: str
@@ -68,15 +74,20 @@ class EndPoint:
     colour_change: tuple[str, str]
     pM: dict[str, float]
     budget: dict[str, float] = field(default_factory=dict)
+    step: str = ""
+    start_mL: float = 0.0
+    derived: bool = False
 
 
 @dataclass(frozen=True)
 class Titration:
     """A simulated titration and what an analyst reads from it.
 
-    Arrays run over ``volume_mL`` (the strategy's volume axis: titrant, or back-titrant). ``endpoints`` holds one
-    :class:`EndPoint` per titre (one for a direct or a back-titration); ``endpoint_mL``, ``error_percent``,
-    ``sharpness_mL``, ``colour_change`` and ``pM_ep`` read the first.
+    Arrays run over ``volume_mL`` (the strategy's volume axis: titrant, or back-titrant; a multi-step strategy's
+    steps one after the other). ``endpoints`` holds one :class:`EndPoint` per titre (one for a direct or a
+    back-titration; one per step, and per derived result, for a multi-step strategy); ``endpoint_mL``,
+    ``error_percent``, ``sharpness_mL``, ``colour_change`` and ``pM_ep`` read the governing one
+    (``endpoints[governing]``: the first, or the multi-step strategy's worst result).
     """
 
     sample: Sample
@@ -109,31 +120,39 @@ class Titration:
     analyte_precipitates: tuple[str, ...] = ()
     mass_balance_error: float = 0.0  # largest relative mass-balance error over the curve, recomputed
     standardisation: EndPoint | None = None  # the same method on the primary standard, where simulated
+    governing: int = 0  # the end point the single-value properties read
+    steps: tuple["Titration", ...] = field(default=(), repr=False)  # a multi-step strategy's titrations, in order
+    titre_total_mL: float | None = None  # a multi-step strategy's burette volume, where it is not one end point's
+
+    @property
+    def result(self) -> EndPoint:
+        """The governing end point (the first; a multi-step strategy's worst result)."""
+        return self.endpoints[self.governing]
 
     @property
     def endpoint_mL(self) -> float | None:
-        return self.endpoints[0].volume_mL
+        return self.result.volume_mL
 
     @property
     def error_percent(self) -> float | None:
-        return self.endpoints[0].error_percent
+        return self.result.error_percent
 
     @property
     def sharpness_mL(self) -> float | None:
-        return self.endpoints[0].sharpness_mL
+        return self.result.sharpness_mL
 
     @property
     def colour_change(self) -> tuple[str, str]:
-        return self.endpoints[0].colour_change
+        return self.result.colour_change
 
     @property
     def pM_ep(self) -> dict[str, float]:
-        return self.endpoints[0].pM
+        return self.result.pM
 
     @property
     def budget(self) -> dict[str, float]:
-        """The first end point's error split by cause [%]."""
-        return self.endpoints[0].budget
+        """The governing end point's error split by cause [%]."""
+        return self.result.budget
 
     @property
     def standardised_error_percent(self) -> float | None:
@@ -184,6 +203,8 @@ class Titration:
     @property
     def titre_mL(self) -> float:
         """The largest volume the burette must deliver [mL]."""
+        if self.titre_total_mL is not None:
+            return self.titre_total_mL
         return self.method.strategy.titre_mL(self.endpoint_mL, self.excess_mL)
 
     @property
@@ -207,27 +228,35 @@ def _check_constants(metals: Sequence[str], titrant: str) -> None:
                                        f"with {m} present (the model never takes a missing constant as 'no binding')")
 
 
-def plan(sample: Sample, method: Method, n_points: int) -> Plan:
-    """Set up one titration: pretreatment, chemical system, and the totals along the curve (by its strategy)."""
+def plan(sample: Sample, method: Method, n_points: int, carry: Carry | None = None) -> Plan:
+    """Set up one titration: pretreatment, chemical system, and the totals along the curve (by its strategy).
+
+    ``carry`` is what earlier steps of a multi-step strategy left in the solution (their titrant, a metal or ligand
+    added or consumed, their volume); the method's own reagents are concentrations at this step's start."""
     db = database()
     strategy = method.strategy
     prep = prepare(sample, method)
     added = strategy.added_metals(method)
+    carried = dict(carry.amounts_mmol) if carry is not None else {}
+    added = tuple(added) + tuple(m for m in carried if m in db.metals and m not in added)
     metals = list(prep.metals) + [m for m in added if m not in prep.metals]
     _check_constants([m for m in metals if prep.metals.get(m, 0.0) > 0 or m in added], method.titrant)
     if not any(prep.metals.get(a, 0.0) > 0 for a in sample.analyte):
         raise InapplicableMethodError(f"the method leaves no {', '.join(sample.analyte)} to titrate: "
                                       f"{', '.join(a for a, _ in method.masking) or 'its reagents'} mask or reduce the analyte itself")
-    system = build_system(tuple(metals), method.ligands)
+    ligands = method.ligands + tuple(k for k in carried if k not in db.metals and k not in method.ligands)
+    system = build_system(tuple(metals), tuple(dict.fromkeys(ligands)))
     comps = system.components
-    V0, cT = sample.volume_mL, method.titrant_conc_M
+    V0, cT = sample.volume_mL + (carry.volume_mL if carry is not None else 0.0), method.titrant_conc_M
     binding = [m for m in prep.metals if db.metals[m].get("binds_titrant", True) is not False]
     base = np.zeros(len(comps))
     for m, c in prep.metals.items():
-        base[comps.index(m)] = c
+        base[comps.index(m)] = c * sample.volume_mL / V0
     for lig, c in prep.ligand_totals.items():
         base[comps.index(lig)] += c
     base[comps.index(method.indicator)] += method.indicator_dose_M
+    for k, n in carried.items():
+        base[comps.index(k)] = max(base[comps.index(k)] + n / V0, 0.0)
     iY = comps.index(method.titrant)
 
     def totals_before(V: Array) -> Array:
@@ -236,8 +265,9 @@ def plan(sample: Sample, method: Method, n_points: int) -> Plan:
         return T
 
     p = Plan(sample=sample, method=method, prep=prep, system=system, metals=metals, totals_before=totals_before,
-             V_eq=sample.n_analyte_mmol / cT, V_all=sum(prep.metals[m] for m in binding) * V0 / cT, n_points=n_points,
-             slow=[m for m in sample.analyte if db.metals[m].get("slow_with_titrant")], findings=list(prep.findings))
+             V_eq=sample.n_analyte_mmol / cT, V_all=sum(prep.metals[m] for m in binding) * sample.volume_mL / cT,
+             n_points=n_points, slow=[m for m in sample.analyte if db.metals[m].get("slow_with_titrant")],
+             findings=list(prep.findings), carry=carry)
     strategy.plan_curve(p)
     p.V = np.linspace(0.0, p.V_hi, n_points)
     return p
@@ -317,7 +347,7 @@ def standard_sample(sample: Sample) -> Sample:
 
 
 def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161, pH_drift: bool = False,
-                  errors: list | None = None, standardise: bool = False) -> list[Titration | None]:
+                  errors: list | None = None, standardise: bool = False, carry: Carry | None = None) -> list[Titration | None]:
     """Simulate many methods on one sample; candidates that share a chemical system are solved together.
 
     Parameters
@@ -328,23 +358,34 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
     standardise : bool
         Also simulate each method on the primary standard (:func:`standard_sample`), so that each titration carries
         the error left after the titrant is standardised (``Titration.standardisation``).
+    carry : Carry, optional
+        What earlier steps left in the solution (a multi-step strategy's later step; not applied to the standard).
+
+    A method whose strategy runs several titrations (``strategy.composite``) is simulated by its strategy, which
+    calls this function for each step.
     """
     plans: list[Plan | None] = []
+    composite: dict[int, Titration | None] = {}
     for k, m in enumerate(methods):
         try:
-            plans.append(plan(sample, m, n_points))
+            if m.strategy.composite:
+                composite[k] = m.strategy.simulate(sample, m, n_points, pH_drift, standardise)
+                plans.append(None)
+            else:
+                plans.append(plan(sample, m, n_points, carry))
         except (MissingConstantError, InapplicableMethodError) as exc:
             if errors is None:
                 raise
             errors.append((k, exc))
+            composite[k] = None
             plans.append(None)
     live = [p for p in plans if p is not None]
     std = [plan(standard_sample(sample), p.method, n_points) for p in live] if standardise else []
-    done = _run(live + std, pH_drift, n_drift=len(live))
+    done = _run(live + std, pH_drift, n_drift=len(live)) if live else []
     if std:
         done = [replace(t, standardisation=s.endpoints[0]) for t, s in zip(done[:len(live)], done[len(live):])]
     results = iter(done)
-    return [None if p is None else next(results) for p in plans]
+    return [composite[k] if k in composite else next(results) for k in range(len(plans))]
 
 
 def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
@@ -466,7 +507,7 @@ def _indicator_findings(plan: Plan, blocked: list[str], blank: float | None, sha
         out.append(fd.warning("indicator_pH", indicator=indicator.name, low=indicator.usable_pH[0],
                               high=indicator.usable_pH[1], pH=method.pH))
     if (indicator.needs_Mg_for_Ca and "Ca" in sample.analyte and sample.metals.get("Mg", 0.0) <= 0
-            and method.strategy.reads_release):
+            and "Mg" not in plan.metals and method.strategy.reads_release):
         out.append(fd.warning("needs_magnesium", indicator=indicator.name))
     if sharp is not None and sharp > GRADUAL_DROPS * DROP_mL:
         out.append(fd.warning("too_gradual", sharpness_mL=sharp, drops=sharp / DROP_mL))
@@ -502,7 +543,7 @@ def _pH_drifts(live: Sequence[Plan], coarse: Sequence[Equilibrium], V_eps: Seque
             V = np.array([0.0, V_eps[k]])
             T = p.totals(V)
             T_H0 = float(coarse[k].c[0] @ system.nu[:, iH])
-            V0 = p.sample.volume_mL
+            V0 = p.V_start
             T[:, iH] = T_H0 * V0 / (V0 + V) + TITRANT_PROTONS * p.method.titrant_conc_M * V / (V0 + V)
             blocks.append(T)
         I = np.concatenate([np.full(2, live[k].sample.ionic_strength_M) for k in ks])

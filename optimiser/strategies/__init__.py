@@ -13,8 +13,9 @@ from ..errors import UnknownNameError
 from .base import Strategy
 from .back import BackTitration
 from .direct import DirectTitration
+from .displacement import DisplacementTitration
 
-REGISTRY: dict[str, Strategy] = {s.id: s for s in (DirectTitration(), BackTitration())}
+REGISTRY: dict[str, Strategy] = {s.id: s for s in (DirectTitration(), BackTitration(), DisplacementTitration())}
 
 
 def strategy(mode: str) -> Strategy:

@@ -18,6 +18,27 @@ if TYPE_CHECKING:  # pragma: no cover
 Array = NDArray[np.float64]
 
 
+@dataclass(frozen=True)
+class Carry:
+    """What earlier steps leave in the solution a titration starts from (a multi-step strategy's carry-over).
+
+    Attributes
+    ----------
+    volume_mL : float
+        Volume added to the aliquot before this step (titrant of earlier steps) [mL].
+    amounts_mmol : dict
+        Component -> amount added (or, negative, consumed) before this step [mmol]: the titrant of earlier steps, a
+        metal-titrant complex, a ligand a reagent destroys. The step's own reagents (buffer, masking agents,
+        indicator) are concentrations at the step's start and are not carried.
+    titrated : tuple of str
+        Metals an earlier step titrated: the titrant they hold is the earlier step's, not this one's.
+    """
+
+    volume_mL: float = 0.0
+    amounts_mmol: dict[str, float] = field(default_factory=dict)
+    titrated: tuple[str, ...] = ()
+
+
 @dataclass
 class Plan:
     """One titration's set-up between the batched solves.
@@ -70,6 +91,12 @@ class Plan:
     frozen: dict[str, float] = field(default_factory=dict)
     inert_mM: dict[str, float] = field(default_factory=dict)
     V: Array | None = None
+    carry: Carry | None = None
+
+    @property
+    def V_start(self) -> float:
+        """The solution's volume when this titration starts (the aliquot and what earlier steps added) [mL]."""
+        return self.sample.volume_mL + (self.carry.volume_mL if self.carry is not None else 0.0)
 
 
 def indicator_bound(method: Method, eq: Equilibrium, metals: list[str] | tuple[str, ...]) -> Array:
@@ -103,6 +130,12 @@ class Strategy:
     family : str or None
         The kind of selectivity the strategy stands for in the report's alternatives ("back-titration"); None where
         the reagents and pH decide it (a direct titration: masking, another titrant, pH control).
+    composite : bool
+        True where the strategy runs several titrations (steps in one aliquot, or aliquots) and simulates them
+        itself (:meth:`simulate`); each step is then an ordinary single titration on the full equilibrium.
+    time_cost : float
+        Bench time relative to one direct titration (our own scale, common practice: a second titration or aliquot
+        about doubles it); the search may weigh it beside :attr:`complexity`.
     """
 
     id: str = ""
@@ -113,6 +146,8 @@ class Strategy:
     uses_standard: bool = False
     volume_name: str = "titrant"
     family: str | None = None
+    composite: bool = False
+    time_cost: float = 1.0
 
     # -- set-up ------------------------------------------------------------------------------------------
     def check(self, method: Method) -> None:
@@ -182,6 +217,39 @@ class Strategy:
         """The strategy's keys in the JSON result."""
         return {"mode": self.id, "back_metal": None}
 
+    # -- what the search needs ---------------------------------------------------------------------------
+    def applies(self, sample: Sample, search: Any) -> bool:
+        """Whether the strategy can serve this sample with this search space (a search leaves it out where not)."""
+        return True
+
+    def genes(self, sample: Sample, search: Any) -> dict[str, tuple]:
+        """The strategy's own variables for a search, beyond the method's (pH, buffer, titrant, masking, indicator,
+        ``back_metal``): name -> ``("real", low, high)`` or ``("choice", options)``."""
+        return {}
+
+    def method_fields(self, extra: dict[str, Any], sample: Sample, search: Any, base: dict[str, Any]) -> dict[str, Any]:
+        """The :class:`~optimiser.method.Method` keywords the strategy's genes (``extra``) stand for; ``base`` holds
+        the method's own keywords (pH, buffer, titrant, ...)."""
+        return {}
+
+    def hazards(self, method: Any) -> tuple[int, ...]:
+        """Hazard classes (0-4) of the reagents the strategy adds beyond the method's own."""
+        return ()
+
+    def reagent_cautions(self, method: Any) -> list[tuple[str, int, tuple[str, ...]]]:
+        """(name, hazard class, cautions) of each reagent the strategy adds beyond the method's own."""
+        return []
+
+    # -- several titrations ----------------------------------------------------------------------------------
+    def simulate(self, sample: Sample, method: Method, n_points: int, pH_drift: bool, standardise: bool):
+        """Simulate every step of a composite strategy and return one :class:`~optimiser.titration.Titration` with
+        an end point per step (and per result); single titrations are simulated by :mod:`optimiser.titration`."""
+        raise NotImplementedError
+
+    def bench_steps(self, method: Any, t: Any) -> list[str] | None:
+        """The numbered bench steps of a composite strategy (None: the single titration's procedure)."""
+        return None
+
 
 def titrant_parts(plan: Plan, eq: Equilibrium, point: int) -> dict[str, float]:
     """Titrant held by each metal of the system at ``point``, and the rest ("unbound") [mol/L]."""
@@ -209,13 +277,20 @@ def budget_parts(plan: Plan, eq: Equilibrium, point: int, dilution_mL: float, in
     With A the analyte as the sample holds it, Y_m the titrant held by metal m, Y_u the titrant held by none, and
     the analyte's parts bound to the titrant (plus any inert complex) and to the indicator:
     error = sum over interferents of Y_m / A + Y_u / A - (analyte on the indicator) / A - (analyte bound to neither) / A
-    - (standard added but not held by the titrant) / A; the parts add up to the error exactly (mass balance).
+    - (standard added but not held by the titrant) / A; the parts add up to the error exactly (mass balance). After an
+    earlier step in the same solution (``plan.carry``), the titrant that step added less what the metals it titrated
+    hold is one part (``carried_over``: its over- or under-titration).
     """
     A, on_titrant, on_indicator = analyte_parts(plan, eq, point, dilution_mL)
     inert = inert_mmol / dilution_mL
     held = titrant_parts(plan, eq, point)
+    earlier = plan.carry.titrated if plan.carry is not None else ()
     parts = {f"cotitration:{m}": 100.0 * y / A for m, y in held.items()
-             if m not in ("unbound", standard) and m not in plan.sample.analyte}
+             if m not in ("unbound", standard) and m not in plan.sample.analyte and m not in earlier}
+    if plan.carry is not None and (earlier or plan.method.titrant in plan.carry.amounts_mmol):
+        # the titrant an earlier step added, less what the metals it titrated hold: its over- or under-titration
+        carried = plan.carry.amounts_mmol.get(plan.method.titrant, 0.0) / dilution_mL
+        parts["carried_over"] = 100.0 * (sum(held.get(m, 0.0) for m in earlier) - carried) / A
     parts["titrant_unbound"] = 100.0 * held["unbound"] / A
     if standard is not None:
         # where the sample holds the standard's metal too, the titrant's share of it is split in proportion
@@ -223,6 +298,10 @@ def budget_parts(plan: Plan, eq: Equilibrium, point: int, dilution_mL: float, in
         from_sample = held[standard] * in_sample / (in_sample + standard_added_M) if in_sample > 0 else 0.0
         if in_sample > 0 and standard not in plan.sample.analyte:
             parts[f"cotitration:{standard}"] = 100.0 * from_sample / A
+        elif in_sample > 0:  # an analyte metal: the added part is not the analyte's, on the titrant or the indicator
+            added_share = standard_added_M / (in_sample + standard_added_M)
+            on_titrant -= held[standard] * added_share
+            on_indicator -= float(eq.bound(plan.method.indicator, standard)[point]) * added_share
         parts["standard_unbound"] = -100.0 * (standard_added_M - (held[standard] - from_sample)) / A
     parts["indicator_blank"] = -100.0 * on_indicator / A
     parts["analyte_unbound"] = -100.0 * (A - on_titrant - inert - on_indicator) / A
