@@ -348,6 +348,8 @@ def safety(method: Method | None) -> tuple[SafetyItem, ...]:
     ids = [method.buffer, method.titrant, method.indicator, *(a for a, _ in method.masking)]
     items += [SafetyItem(rule.name, HAZARD_NAMES[rule.hazard], tuple(rule.cautions))
               for rule in catalogue().safety_rules_for(ids)]  # rules on combinations of reagents (reagents.yaml)
+    # what the strategy adds (a second step's buffer, a demasking agent)
+    items += [SafetyItem(name, HAZARD_NAMES[h], tuple(c)) for name, h, c in method.strategy.reagent_cautions(method)]
     return tuple(items)
 
 

@@ -161,6 +161,12 @@ class Method:
         from .strategies import strategy
         return strategy(self.mode)
 
+    def with_mode(self, mode: str) -> "Method":
+        """The same conditions as a single titration run by the strategy ``mode`` (no stage, no co-analytes)."""
+        from dataclasses import replace
+
+        return replace(self, mode=mode, stage=None, co_analytes=())
+
     @property
     def back_concentration(self) -> float:
         return self.back_conc_M if self.back_conc_M is not None else self.titrant_conc_M

@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from .conditional import Conditions, conditional_constant, feasibility
-from .errors import MissingConstantError
+from .errors import InputError, MissingConstantError
 from .reagents import HAZARD_NAMES, catalogue
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -63,11 +63,17 @@ def complexity_of(c: Candidate) -> float:
     return len(c.masking) + c.strategy.complexity + catalogue().titrant(c.titrant).complexity
 
 
-def hazard_of(c: Candidate) -> int:
-    """The highest hazard class (0-4) of the candidate's reagents."""
+def hazard_of(c: Candidate, scenario: Scenario | None = None) -> int:
+    """The highest hazard class (0-4) of the candidate's reagents (with the scenario, also those its strategy adds)."""
     cat = catalogue()
     levels = [cat.titrant(c.titrant).hazard, cat.buffer(c.buffer).hazard, cat.indicator(c.indicator).hazard]
     levels += [cat.masking_agent(a).hazard for a, _ in c.masking]
+    if scenario is not None and (c.extra or c.strategy.composite):
+        # the reagents a multi-step strategy adds (a second buffer and indicator, a demasking agent)
+        try:
+            levels.append(c.method(scenario).hazard)
+        except InputError:  # a candidate its strategy refuses is screened out by its own checks
+            pass
     return max(levels)
 
 
@@ -125,8 +131,8 @@ def prescreen(scenario: Scenario, c: Candidate, buffers_for) -> list[tuple[str, 
         agent = cat.masking_agent(a)
         if c.pH < agent.min_pH:
             out.append(("masking_pH", f"{agent.name} is not used below pH {agent.min_pH:g}"))
-    if hazard_of(c) > scenario.search.max_hazard:
-        out.append(("hazard", f"hazard {HAZARD_NAMES[hazard_of(c)]} is above the scenario's limit"))
+    if hazard_of(c, scenario) > scenario.search.max_hazard:
+        out.append(("hazard", f"hazard {HAZARD_NAMES[hazard_of(c, scenario)]} is above the scenario's limit"))
     return out
 
 

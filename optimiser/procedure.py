@@ -230,7 +230,10 @@ def _excess_first(method: Method, t: Titration) -> bool:
 
 def bench_steps(scenario: Scenario, method: Method, t: Titration, recipe: list[str], masking: list[MaskingDose],
                 formula: str) -> list[str]:
-    """The numbered steps of the bench procedure, in the order they are done."""
+    """The numbered steps of the bench procedure, in the order they are done (a multi-step strategy writes its own)."""
+    own = method.strategy.bench_steps(scenario, method, t)
+    if own is not None:
+        return own
     V0, cT = scenario.sample.volume_mL, method.titrant_conc_M
     ind, titrant = method.indicator_info, method.titrant
     steps = [f"Pipette {V0:g} mL of sample into a titration flask."]
@@ -248,6 +251,7 @@ def bench_steps(scenario: Scenario, method: Method, t: Titration, recipe: list[s
                      "1 M sodium hydroxide, added slowly with swirling, so that the buffer keeps its full capacity "
                      "(common practice).")
     steps.append(f"Buffer ({method.buffer_info.name}): " + "; ".join(recipe) + ".")
+    steps += method.strategy.reagent_steps(method, V0)
     colour = f"from {t.colour_change[0]} to {t.colour_change[1]}"
     if method.strategy.uses_standard:
         std = method.strategy.variant(method)

@@ -77,6 +77,8 @@ class EndPoint:
     step: str = ""
     start_mL: float = 0.0
     derived: bool = False
+    standardised_percent: float | None = None  # a multi-step strategy's error after standardisation [%]
+    standardised_parts: dict[str, float] = field(default_factory=dict)  # ... and its budget [%]
 
 
 @dataclass(frozen=True)
@@ -160,6 +162,8 @@ class Titration:
         (1 + e) / (1 + e_std) - 1. The raw error where no standardisation was simulated."""
         e = self.error_percent
         std = self.standardisation
+        if self.result.standardised_percent is not None:
+            return self.result.standardised_percent
         if e is None or std is None or std.error_percent is None:
             return e
         return standardised(e, std.error_percent)
@@ -169,6 +173,8 @@ class Titration:
         """The error budget after standardisation [%]: each part less the standard's own, over (1 + e_std); the
         parts add up to :attr:`standardised_error_percent`. The raw budget where no standardisation was simulated."""
         std = self.standardisation
+        if self.result.standardised_parts:
+            return dict(self.result.standardised_parts)
         if std is None or std.error_percent is None or not self.budget:
             return dict(self.budget)
         scale = 1 + std.error_percent / 100
@@ -347,7 +353,8 @@ def standard_sample(sample: Sample) -> Sample:
 
 
 def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161, pH_drift: bool = False,
-                  errors: list | None = None, standardise: bool = False, carry: Carry | None = None) -> list[Titration | None]:
+                  errors: list | None = None, standardise: bool = False,
+                  carry: Carry | Sequence[Carry | None] | None = None) -> list[Titration | None]:
     """Simulate many methods on one sample; candidates that share a chemical system are solved together.
 
     Parameters
@@ -358,21 +365,40 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
     standardise : bool
         Also simulate each method on the primary standard (:func:`standard_sample`), so that each titration carries
         the error left after the titrant is standardised (``Titration.standardisation``).
-    carry : Carry, optional
-        What earlier steps left in the solution (a multi-step strategy's later step; not applied to the standard).
+    carry : Carry or list of Carry, optional
+        What earlier steps left in the solution (a multi-step strategy's later step; one for all the methods, or one
+        per method; not applied to the standard).
 
-    A method whose strategy runs several titrations (``strategy.composite``) is simulated by its strategy, which
-    calls this function for each step.
+    Methods whose strategy runs several titrations (``strategy.composite``) are simulated by their strategy, which
+    calls this function for each step (the same step of all its methods in one call).
     """
+    carries = list(carry) if isinstance(carry, (list, tuple)) else [carry] * len(methods)
     plans: list[Plan | None] = []
     composite: dict[int, Titration | None] = {}
+    by_strategy: dict[str, list[int]] = {}
+    for k, m in enumerate(methods):
+        if m.strategy.composite:
+            by_strategy.setdefault(m.strategy.id, []).append(k)
+    for ks in by_strategy.values():
+        try:
+            ts = methods[ks[0]].strategy.simulate_many(sample, [methods[k] for k in ks], n_points, pH_drift, standardise)
+        except (MissingConstantError, InapplicableMethodError):
+            if errors is None:
+                raise
+            ts = []
+            for k in ks:  # one by one, so that only the offending method is lost
+                try:
+                    ts.append(methods[k].strategy.simulate(sample, methods[k], n_points, pH_drift, standardise))
+                except (MissingConstantError, InapplicableMethodError) as exc:
+                    errors.append((k, exc))
+                    ts.append(None)
+        composite.update(zip(ks, ts))
     for k, m in enumerate(methods):
         try:
             if m.strategy.composite:
-                composite[k] = m.strategy.simulate(sample, m, n_points, pH_drift, standardise)
                 plans.append(None)
             else:
-                plans.append(plan(sample, m, n_points, carry))
+                plans.append(plan(sample, m, n_points, carries[k]))
         except (MissingConstantError, InapplicableMethodError) as exc:
             if errors is None:
                 raise
@@ -380,12 +406,24 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
             composite[k] = None
             plans.append(None)
     live = [p for p in plans if p is not None]
-    std = [plan(standard_sample(sample), p.method, n_points) for p in live] if standardise else []
+    std = [plan(standard_sample(sample), p.method, n_points, _reagents_only(p.carry)) for p in live] if standardise else []
     done = _run(live + std, pH_drift, n_drift=len(live)) if live else []
     if std:
         done = [replace(t, standardisation=s.endpoints[0]) for t, s in zip(done[:len(live)], done[len(live):])]
     results = iter(done)
     return [composite[k] if k in composite else next(results) for k in range(len(plans))]
+
+
+def _reagents_only(carry: Carry | None) -> Carry | None:
+    """What a step's standard shares with the step: a ligand a reagent destroyed (not the titrant or metals of
+    earlier steps, which the standard never saw)."""
+    if carry is None:
+        return None
+    from .constants import database
+
+    metals = database().metals
+    kept = {k: v for k, v in carry.amounts_mmol.items() if v < 0 and k not in metals}
+    return Carry(0.0, kept) if kept else None
 
 
 def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:

@@ -246,9 +246,13 @@ class Strategy:
         an end point per step (and per result); single titrations are simulated by :mod:`optimiser.titration`."""
         raise NotImplementedError
 
-    def bench_steps(self, method: Any, t: Any) -> list[str] | None:
+    def bench_steps(self, scenario: Any, method: Any, t: Any) -> list[str] | None:
         """The numbered bench steps of a composite strategy (None: the single titration's procedure)."""
         return None
+
+    def reagent_steps(self, method: Any, V0_mL: float) -> list[str]:
+        """Bench steps for what the strategy adds to a single titration after the buffer (a displacing complex)."""
+        return []
 
 
 def titrant_parts(plan: Plan, eq: Equilibrium, point: int) -> dict[str, float]:

@@ -92,6 +92,13 @@ class DisplacementTitration(Strategy):
         parts["added_complex"] = parts.pop("standard_unbound")
         return parts
 
+    def reagent_steps(self, method, V0_mL: float) -> list[str]:
+        c = COMPLEXES[method.back_metal]
+        n = self.dose_M(method) * V0_mL
+        return [f"Add {n:.3g} mmol of {c['salt']} ({self.dose_M(method) * 1000:.3g} mmol/L in the aliquot; the "
+                f"water-hardness buffers carry it): it makes the indicator respond and adds nothing to the titre, "
+                f"since metal and titrant come in equal amounts."]
+
     def complex_metal(self, method, sample) -> str:
         return method.back_metal
 
