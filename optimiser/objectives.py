@@ -103,6 +103,7 @@ VIOLATIONS = {
     "blocked": ("readable", "the indicator is blocked"),
     "missing_constant": ("readable", "a constant is missing"),
     "inapplicable": ("readable", "the method masks the analyte itself"),
+    "strategy": ("readable", "the strategy's own conditions do not fit (a second step, an added complex)"),
     "not_converged": ("readable", "the equilibrium did not converge"),
     "analyte_solid": ("chemistry", "the analyte precipitates"),
     "slow": ("chemistry", "the analyte reacts too slowly"),
@@ -114,6 +115,7 @@ VIOLATIONS = {
     "too_gradual": ("readable", "the colour change is too gradual"),
     "no_contrast": ("readable", "the colour does not change"),
     "burette": ("volume", "the titre exceeds the burette"),
+    "groups": ("chemistry", "an analyte the scenario names is not determined"),
 }
 CONSTRAINTS = ("readable", "chemistry", "volume")
 
@@ -131,6 +133,7 @@ def prescreen(scenario: Scenario, c: Candidate, buffers_for) -> list[tuple[str, 
         agent = cat.masking_agent(a)
         if c.pH < agent.min_pH:
             out.append(("masking_pH", f"{agent.name} is not used below pH {agent.min_pH:g}"))
+    out += c.strategy.prescreen(c, scenario)
     if hazard_of(c, scenario) > scenario.search.max_hazard:
         out.append(("hazard", f"hazard {HAZARD_NAMES[hazard_of(c, scenario)]} is above the scenario's limit"))
     return out
@@ -152,6 +155,10 @@ def titration_violations(scenario: Scenario, c: Candidate, t: Titration) -> list
         v.append(("slow", "the analyte reacts too slowly for a direct titration"))
     if err is not None and abs(err) > 10 * scenario.targets.max_error_percent:
         v.append(("error_far", f"error {err:+.1f} % is more than ten times the target"))
+    missing = [g for g in (scenario.sample.analyte, *scenario.sample.groups) if g not in t.groups_determined]
+    if missing:
+        v.append(("groups", f"{' and '.join('+'.join(g) for g in missing)} not determined (the scenario names "
+                            f"{len(scenario.sample.groups) + 1} analytes to determine separately)"))
     if t.titre_mL > scenario.burette_mL:
         v.append(("burette", f"titre {t.titre_mL:.1f} mL exceeds the {scenario.burette_mL:g} mL burette"))
     if t.endpoint_mL is not None:

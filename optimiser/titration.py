@@ -125,6 +125,12 @@ class Titration:
     governing: int = 0  # the end point the single-value properties read
     steps: tuple["Titration", ...] = field(default=(), repr=False)  # a multi-step strategy's titrations, in order
     titre_total_mL: float | None = None  # a multi-step strategy's burette volume, where it is not one end point's
+    determined: tuple[tuple[str, ...], ...] = ()  # the analyte groups reported (a multi-step strategy's; else the analyte)
+
+    @property
+    def groups_determined(self) -> tuple[tuple[str, ...], ...]:
+        """The analyte groups this titration reports a result for (a single titration: the sample's analyte)."""
+        return self.determined or (self.sample.analyte,)
 
     @property
     def result(self) -> EndPoint:

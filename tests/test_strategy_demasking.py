@@ -63,3 +63,24 @@ def test_the_search_offers_demasking_for_zinc_beside_copper():
     e = Evaluator(sc).evaluate([c])[0]
     assert e.feasible, e.violations
     assert e.hazard == 4
+
+
+def test_a_search_puts_demasking_among_the_alternatives():
+    """Zinc beside copper, the search limited to ammonia, EBT and cyanide (so that it is quick): cyanide alone masks
+    the zinc too, and the demasking method is found, with formaldehyde's cautions in its safety list."""
+    from optimiser.search import run_search
+
+    sc = parse(textwrap.dedent("""
+        name: zinc beside copper, narrow search (an invented demo)
+        sample: {volume: 50 mL}
+        analyte: {metals: {Zn: 1 mmol/L}}
+        interferents: {Cu: 1 mmol/L}
+        titrant: {concentration: 0.01 M}
+        search: {pH: [9.0, 10.5], buffers: [ammonia], indicators: [EBT], masking: [cyanide], titrants: [EDTA],
+                 modes: [direct, demasking], max_masking_agents: 1}
+    """))
+    r = run_search(sc, seed=1, pop_size=16, n_gen=6, with_robustness=False)
+    demasked = [a.evaluation for a in r.front if a.strategy == "demasking"]
+    assert demasked and any(e.feasible for e in demasked)
+    cautions = " ".join(c for item in safety(demasked[0].candidate.method(sc)) for c in item.cautions)
+    assert "carcinogen" in cautions

@@ -70,3 +70,22 @@ def test_two_aliquots_do_not_carry_over_and_cost_more(evaluated):
     assert e.F[sc.objectives.index("complexity")] >= 1.5
     names = [item.name for item in safety(e.candidate.method(sc))]
     assert any("sodium hydroxide" in n for n in names)  # the second aliquot's alkali and its cautions
+
+
+def test_the_search_proposes_the_difference_with_the_magnesium_error():
+    """Magnesium beside twice as much calcium, the search limited to EDTA, EBT or calconcarboxylic acid, ammonia or
+    NaOH (so that it is quick): a single titration cannot give magnesium alone, the difference can; the recommended
+    method is the difference, its magnesium error stated and within the 1 % target."""
+    from optimiser.search import run_search
+
+    sc = parse(SCENARIO.replace("targets:", "search: {pH: [9.0, 13.2], buffers: [ammonia, NaOH], indicators: [EBT, "
+                                "calcon_carboxylic], titrants: [EDTA], masking: [], max_masking_agents: 0, modes: "
+                                "[direct, difference]}\ntargets:"))
+    r = run_search(sc, seed=1, pop_size=24, n_gen=10, with_robustness=False)
+    assert r.meets_criteria
+    rec = r.recommended
+    assert rec.candidate.mode == "difference"
+    t = r.recommended_titration
+    assert t.result.derived and t.result.label.startswith("Mg")
+    assert abs(rec.standardised_error_percent) < 1.0
+    assert dict(rec.candidate.extra)["stage_pH"] >= 12.0  # calcium alone where Mg(OH)2 has precipitated

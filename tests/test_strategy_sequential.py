@@ -14,7 +14,7 @@ from optimiser.titration import simulate
 
 BI_PB = Sample(50, {"Bi": 0.002, "Pb": 0.002}, ("Pb",))
 STAGE = Method(2.3, "nitric_acid", "EDTA", 0.01, "xylenol_orange", buffer_total_M=0.0)
-METHOD = Method(5.5, "hexamine", "EDTA", 0.01, "xylenol_orange", mode="sequential", stage=STAGE, co_analytes=("Bi",))
+METHOD = Method(6.0, "hexamine", "EDTA", 0.01, "xylenol_orange", mode="sequential", stage=STAGE, co_analytes=("Bi",))
 
 
 @pytest.fixture(scope="module")
@@ -39,7 +39,7 @@ def test_the_solution_carries_over(bi_pb):
     assert pb.start_mL == pytest.approx(bi.volume_mL)
     assert bi_pb.titre_mL == pytest.approx(bi.volume_mL + pb.volume_mL, rel=1e-9)
     assert np.all(np.diff(bi_pb.volume_mL) >= 0)
-    assert set(np.unique(bi_pb.pH)) == {2.3, 5.5}
+    assert set(np.unique(bi_pb.pH)) == {2.3, 6.0}
     # the titrant of the first step less what bismuth still holds is its own part; the parts add up to the error
     assert "carried_over" in pb.budget and "cotitration:Bi" not in pb.budget
     assert sum(pb.budget.values()) == pytest.approx(pb.error_percent, abs=1e-6)
@@ -66,14 +66,32 @@ SCENARIO = textwrap.dedent("""
 """)
 
 
-@pytest.mark.xfail(strict=True, reason="lead alone with xylenol orange at pH 5.5 turns over 28 drops with -2.2 % in this "
-                   "database (its Pb- and Bi-xylenol orange constants are fitted, low confidence, and are being replaced "
-                   "by published ones in the indicators branch), so the standardisation against lead alone moves the "
-                   "lead result by +2.2 %")
 def test_the_search_candidate_is_feasible_after_standardisation():
+    """Bismuth at pH 2.3 (nitric acid), lead at pH 6.0 (hexamine), xylenol orange for both, as a search candidate:
+    feasible at the 1 % target, both analyte groups reported."""
     sc = parse(SCENARIO)
     c = Candidate(2.3, "nitric_acid", -1.0, "EDTA", (), "xylenol_orange", "sequential", "Zn",
-                  extra=(("co", "Pb"), ("stage_buffer", 0), ("stage_indicator", "xylenol_orange"), ("stage_pH", 5.5)))
+                  extra=(("co", "Pb"), ("stage_buffer", 0), ("stage_indicator", "xylenol_orange"), ("stage_pH", 6.0)))
     e = Evaluator(sc).evaluate([c])[0]
     assert e.titration is not None and len(e.titration.endpoints) == 2
     assert e.feasible, e.violations
+    assert e.titration.groups_determined == (("Bi",), ("Pb",))
+
+
+@pytest.mark.xfail(strict=True, reason="with this database's fitted bismuth-xylenol orange constant the search's best "
+                   "sequential method titrates bismuth at pH 2.8, above 2.5; it passes with the published constant of the "
+                   "indicators branch (checked on a copy with that branch's data): drop this mark when both are merged")
+def test_the_search_proposes_bismuth_then_lead():
+    """The issue's check: the search proposes bismuth at pH <= 2.5 and lead at pH 5-6, each within 1 % (after
+    standardisation)."""
+    from optimiser.search import run_search
+
+    sc = parse(SCENARIO.replace("targets:", "search: {pH: [1.5, 6.5], buffers: [nitric_acid, hexamine], indicators: "
+                                "[xylenol_orange], titrants: [EDTA], masking: [], max_masking_agents: 0, modes: "
+                                "[direct, sequential]}\ntargets:"))
+    r = run_search(sc, seed=1, pop_size=24, n_gen=10, with_robustness=False)
+    t = r.recommended_titration
+    assert t is not None and len(t.steps) == 2
+    bi, pb = t.steps
+    assert bi.method.pH <= 2.5 and 5.0 <= pb.method.pH <= 6.0
+    assert all(abs(ep.standardised_percent) < 1.0 for ep in t.endpoints)

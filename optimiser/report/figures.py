@@ -98,11 +98,22 @@ def titration_figure(analysis: Analysis) -> str:
     for i, m in enumerate(order):
         ax.plot(t.volume_mL, t.pM[m], label=f"p{m}", **_style(i))
     lo_hi = None
-    if t.endpoint_mL is not None and t.sharpness_mL is not None:
+    if t.endpoint_mL is not None and t.sharpness_mL is not None and len(t.endpoints) == 1:
         lo_hi = (t.endpoint_mL - t.sharpness_mL / 2, t.endpoint_mL + t.sharpness_mL / 2)
         ax.axvspan(*lo_hi, color="0.85", label="indicator turning (10-90 %)")
-    ax.axvline(t.equivalence_mL, color="black", lw=1, linestyle="--", label=f"equivalence {t.equivalence_mL:.2f} mL")
-    if t.endpoint_mL is not None:
+    read = [ep for ep in t.endpoints if not ep.derived]
+    if len(read) > 1:  # a multi-step strategy: each step's end point where its curve starts, and where the steps meet
+        lo_hi = None
+        for k, ep in enumerate(read):
+            if k:
+                ax.axvline(ep.start_mL, color="0.5", lw=0.8, linestyle=":")
+            if ep.volume_mL is not None:
+                x = ep.start_mL + ep.volume_mL
+                ax.axvline(x, color="black", lw=1.5, linestyle=["-", "-.", (0, (5, 1))][k % 3],
+                           label=f"end point {k + 1} ({ep.label}) {ep.volume_mL:.2f} mL")
+    else:
+        ax.axvline(t.equivalence_mL, color="black", lw=1, linestyle="--", label=f"equivalence {t.equivalence_mL:.2f} mL")
+    if t.endpoint_mL is not None and len(read) <= 1:
         ax.axvline(t.endpoint_mL, color="black", lw=1.5, label=f"end point {t.endpoint_mL:.2f} mL")
     ax2 = ax.twinx()
     ax2.plot(t.volume_mL, np.clip(t.turned, 0, 1) * 100, color="0.4", lw=1, linestyle=(0, (2, 2)), label="indicator turned")

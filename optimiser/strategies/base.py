@@ -232,6 +232,11 @@ class Strategy:
         the method's own keywords (pH, buffer, titrant, ...)."""
         return {}
 
+    def prescreen(self, candidate: Any, scenario: Any) -> list[tuple[str, str]]:
+        """Violations (kind, text) of the strategy's own genes that need no equilibrium (a second step's indicator
+        outside its pH range, a complex added outside its pH range); kinds of :data:`optimiser.objectives.VIOLATIONS`."""
+        return []
+
     def hazards(self, method: Any) -> tuple[int, ...]:
         """Hazard classes (0-4) of the reagents the strategy adds beyond the method's own."""
         return ()

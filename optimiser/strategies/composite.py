@@ -56,6 +56,12 @@ def step_text(metals, method) -> str:
             f"{method.indicator_info.name})")
 
 
+def _candidate_text(strategy, c) -> str:
+    """A search candidate in words: the strategy and its genes."""
+    genes = ", ".join(f"{k} {v}" for k, v in getattr(c, "extra", ()))
+    return f"{strategy.label}" + (f" ({genes})" if genes else "")
+
+
 class CompositeStrategy(Strategy):
     """A strategy made of several single titrations; subclasses say what the steps are (:meth:`steps`) and, where a
     result is computed from several end points, how (:meth:`derived`)."""
@@ -94,6 +100,8 @@ class CompositeStrategy(Strategy):
         return out
 
     def json_fields(self, method) -> dict:
+        if not hasattr(method, "stage"):  # a search candidate: its genes
+            return {"mode": self.id, "back_metal": None, **dict(getattr(method, "extra", ()))}
         st = method.stage
         return {"mode": self.id, "back_metal": None, "co_analytes": list(method.co_analytes),
                 "stage": None if st is None else {"pH": st.pH, "buffer": st.buffer, "indicator": st.indicator,
@@ -246,7 +254,8 @@ def combine(sample: Sample, method: Method, steps: list[Step], ts: list[Titratio
         slow_analytes=tuple(dict.fromkeys(m for t in ts for m in t.slow_analytes)),
         analyte_precipitates=tuple(dict.fromkeys(m for t in ts for m in t.analyte_precipitates)),
         mass_balance_error=max(t.mass_balance_error for t in ts), governing=governing, steps=tuple(ts),
-        titre_total_mL=titre)
+        titre_total_mL=titre, determined=tuple(dict.fromkeys(
+            [st.sample.analyte for st in steps if st.reported] + [sample.analyte for ep in derived if ep.derived])))
 
 
 def co_analyte_options(sample: Sample) -> list[str]:
@@ -271,6 +280,52 @@ def stage_fields(extra: dict[str, Any], base: dict[str, Any], search: Any) -> di
                    titrant_conc_M=base["titrant_conc_M"], indicator=str(extra["stage_indicator"]))
     co = str(extra.get("co", "none"))
     return {"stage": stage, "co_analytes": tuple(co.split("+")) if co != "none" else ()}
+
+
+def log_K_ML(metal: str, ligand: str) -> float:
+    """log K of the 1:1 complex ML from the database (-inf where there is none)."""
+    from ..constants import H, database
+
+    ks = [k for k in database().complexes.get((metal, ligand), ()) if H not in k.stoichiometry
+          and k.stoichiometry.get(ligand) == 1 and len(k.stoichiometry) == 2]
+    return max((k.log_K for k in ks), default=-np.inf)
+
+
+def needs_another_titration(sample: Sample, search: Any) -> bool:
+    """Whether a multi-step strategy has a reason to be searched: the scenario names several analytes to determine
+    apart, or an interferent binds a searched titrant more strongly than the analyte (log K of ML), so that no pH
+    titrates the analyte alone and practice titrates the interferent first or takes a difference."""
+    if sample.groups:
+        return True
+    log_K = log_K_ML
+    for t in search.titrants:
+        weakest = min(log_K(a, t) for a in sample.analyte)
+        if np.isfinite(weakest) and any(log_K(m, t) > weakest for m in sample.interferents):
+            return True
+    return False
+
+
+def stage_prescreen(c, scenario) -> list[tuple[str, str]]:
+    """The stage genes' quick checks: its indicator's pH range, a buffer that holds its pH, a metal to determine, and
+    a pH apart from the method's (two titrations at one pH are one titration)."""
+    from ..candidate import buffers_for
+    from ..reagents import catalogue
+
+    extra = dict(c.extra)
+    if "stage_pH" not in extra:
+        return []
+    out = []
+    pH = float(extra["stage_pH"])
+    ind = catalogue().indicator(str(extra["stage_indicator"]))
+    if not ind.usable_pH[0] <= pH <= ind.usable_pH[1]:
+        out.append(("indicator_pH", f"{ind.name} shows no colour change at the second step's pH {pH:.2f}"))
+    if not buffers_for(pH, scenario.search.buffers):
+        out.append(("buffer", f"no allowed buffer holds the second step's pH {pH:.2f}"))
+    if extra.get("co", "none") == "none":
+        out.append(("strategy", "the second step determines nothing"))
+    if abs(pH - c.pH) < 1.0:
+        out.append(("strategy", "the two steps' pH values are less than one unit apart"))
+    return out
 
 
 def stage_genes(sample: Sample, search: Any) -> dict[str, tuple]:
@@ -326,4 +381,4 @@ def composite_steps(scenario, method, t, steps: list[Step], between=None) -> lis
     return out
 
 
-__all__ = ["CompositeStrategy", "composite_steps", "Step", "combine", "step_text", "stage_genes", "stage_fields", "co_analyte_options"]
+__all__ = ["CompositeStrategy", "composite_steps", "stage_prescreen", "needs_another_titration", "Step", "combine", "step_text", "stage_genes", "stage_fields", "co_analyte_options"]

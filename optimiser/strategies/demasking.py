@@ -15,7 +15,7 @@ from ..constants import database
 from ..errors import InputError
 from ..method import Sample
 from ..reagents import catalogue
-from .composite import CompositeStrategy, Step, co_analyte_options, step_text
+from .composite import CompositeStrategy, _candidate_text, Step, co_analyte_options, step_text
 
 # demasking agent -> the masking ligand it destroys, mol destroyed per mol of agent, its dose as mol per mol of the
 # masking agent's dose, hazard (0-4, our scale) and the cautions the report prints. Sources beside each entry.
@@ -130,11 +130,15 @@ class DemaskingTitration(CompositeStrategy):
         return "+".join(getattr(method, "co_analytes", ()))
 
     def describe(self, method) -> str:
+        if not hasattr(method, "stage"):
+            return _candidate_text(self, method)
         did, d, _ = self.dose(method)
         first = f"{'+'.join(method.co_analytes)} titrated, then " if method.co_analytes else ""
         return f"demasking: {first}{did} releases the analyte from {d['masking']}"
 
     def json_fields(self, method) -> dict:
+        if not hasattr(method, "stage"):  # a search candidate: its genes
+            return {"mode": self.id, "back_metal": None, **dict(getattr(method, "extra", ()))}
         did, d, c = self.dose(method)
         return {"mode": self.id, "back_metal": None, "co_analytes": list(method.co_analytes),
                 "demasking_agent": did, "demasking_conc_M": c}

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 from ..errors import InputError
 from ..method import Sample
-from .composite import CompositeStrategy, Step, stage_fields, stage_genes, step_text
+from .composite import CompositeStrategy, _candidate_text, Step, needs_another_titration, stage_fields, stage_genes, stage_prescreen, step_text
 
 
 class DifferenceDetermination(CompositeStrategy):
@@ -35,13 +35,16 @@ class DifferenceDetermination(CompositeStrategy):
             raise InputError("each aliquot of a determination by difference is a single titration")
 
     def applies(self, sample, search) -> bool:
-        return len(sample.metals) > 1
+        return needs_another_titration(sample, search)
 
     def genes(self, sample, search) -> dict[str, tuple]:
         return stage_genes(sample, search)
 
     def method_fields(self, extra, sample, search, base) -> dict:
         return stage_fields(extra, base, search)
+
+    def prescreen(self, candidate, scenario) -> list[tuple[str, str]]:
+        return stage_prescreen(candidate, scenario)
 
     def steps(self, sample: Sample, method) -> list[Step]:
         both = tuple(dict.fromkeys((*sample.analyte, *method.co_analytes)))
@@ -77,6 +80,8 @@ class DifferenceDetermination(CompositeStrategy):
                          standardised_percent=e_std, standardised_parts=scaled(t1.standardised_budget, t2.standardised_budget))]
 
     def describe(self, method) -> str:
+        if not hasattr(method, "stage"):
+            return _candidate_text(self, method)
         return (f"by difference: analyte + {'+'.join(method.co_analytes)} at pH {method.pH:.2f}, "
                 f"{'+'.join(method.co_analytes)} at pH {method.stage.pH:.2f}")
 

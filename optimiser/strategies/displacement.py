@@ -9,17 +9,19 @@ the buffer for this reason (Standard Methods 2340 C, in /work/shared/reference/s
 """
 from __future__ import annotations
 
+import numpy as np
+
 from .. import findings as fd
 from ..errors import InputError
 from .base import Array, Plan, Strategy, budget_parts, indicator_bound
 
 # metal -> the complex added and its usual concentration in the aliquot [mol/L], with its source.
 COMPLEXES: dict[str, dict] = {
-    "Mg": {"dose_M": 2.5e-4, "salt": "magnesium-EDTA (Na2MgY), or equal amounts of MgSO4.7H2O and Na2H2Y.2H2O",
+    "Mg": {"dose_M": 2.5e-4, "pH_range": (9.0, 11.0),  # the hardness buffers' pH, 10.0 +/- 0.1 (Standard Methods 2340 C) "salt": "magnesium-EDTA (Na2MgY), or equal amounts of MgSO4.7H2O and Na2H2Y.2H2O",
            # Standard Methods 2340 C: the ammonia buffer carries Mg-EDTA (standards.md); the amount from memory:
            # 1.179 g Na2H2Y.2H2O + 0.780 g MgSO4.7H2O per 250 mL of buffer, 1-2 mL of buffer per 50 mL of sample.
            "source": "Standard Methods 2340 C (Mg-EDTA in the buffer); dose from memory"},
-    "Zn": {"dose_M": 2.5e-4, "salt": "zinc-EDTA (Na2ZnY), or equal amounts of ZnSO4.7H2O and Na2H2Y.2H2O",
+    "Zn": {"dose_M": 2.5e-4, "pH_range": (5.0, 11.0),  # where zinc indicators (xylenol orange, EBT) serve, from memory "salt": "zinc-EDTA (Na2ZnY), or equal amounts of ZnSO4.7H2O and Na2H2Y.2H2O",
            # common practice: ZnY (or CuY) serves in the same way where the indicator responds to zinc (EBT, PAN)
            "source": "common practice; dose taken as for Mg-EDTA"},
 }
@@ -43,7 +45,23 @@ class DisplacementTitration(Strategy):
             raise InputError(f"the displacement complex's metal must be {' or '.join(COMPLEXES)}; got {method.back_metal!r}")
 
     def applies(self, sample, search) -> bool:
-        return any(m in COMPLEXES for m in search.back_metals)
+        """Where an added metal binds a searched indicator more strongly than the analyte but a searched titrant less
+        strongly (log K of ML): then it holds the indicator until the end point and is displaced by the analyte."""
+        from .composite import log_K_ML
+
+        for M in (m for m in search.back_metals if m in COMPLEXES):
+            for ind in search.indicators:
+                if not all(log_K_ML(M, ind) > log_K_ML(a, ind) > -np.inf for a in sample.analyte):
+                    continue
+                if any(all(log_K_ML(a, t) > log_K_ML(M, t) for a in sample.analyte) for t in search.titrants):
+                    return True
+        return False
+
+    def prescreen(self, candidate, scenario) -> list[tuple[str, str]]:
+        lo, hi = COMPLEXES.get(candidate.back_metal, {}).get("pH_range", (0.0, 14.0))
+        if not lo <= candidate.pH <= hi:
+            return [("strategy", f"the {candidate.back_metal}-titrant complex is added only between pH {lo:g} and {hi:g}")]
+        return []
 
     def dose_M(self, method) -> float:
         """Concentration of the added complex in the aliquot [mol/L]."""

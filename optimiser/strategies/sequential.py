@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from ..errors import InputError
 from ..method import Sample
-from .composite import CompositeStrategy, Step, co_analyte_options, stage_fields, stage_genes, step_text
+from .composite import CompositeStrategy, _candidate_text, Step, co_analyte_options, needs_another_titration, stage_fields, stage_genes, stage_prescreen, step_text
 
 
 class SequentialTitration(CompositeStrategy):
@@ -30,13 +30,16 @@ class SequentialTitration(CompositeStrategy):
             raise InputError("each step of a sequential titration must be a direct titration")
 
     def applies(self, sample, search) -> bool:
-        return len(sample.metals) > 1
+        return needs_another_titration(sample, search)
 
     def genes(self, sample, search) -> dict[str, tuple]:
         return stage_genes(sample, search)
 
     def method_fields(self, extra, sample, search, base) -> dict:
         return stage_fields(extra, base, search)
+
+    def prescreen(self, candidate, scenario) -> list[tuple[str, str]]:
+        return stage_prescreen(candidate, scenario)
 
     def steps(self, sample: Sample, method) -> list[Step]:
         first = Sample(sample.volume_mL, sample.metals, method.co_analytes, sample.ionic_strength_M,
@@ -51,6 +54,8 @@ class SequentialTitration(CompositeStrategy):
         return pair
 
     def describe(self, method) -> str:
+        if not hasattr(method, "stage"):
+            return _candidate_text(self, method)
         return (f"sequential: {'+'.join(method.co_analytes)} at pH {method.stage.pH:.2f}, then the analyte at "
                 f"pH {method.pH:.2f}")
 
