@@ -209,8 +209,8 @@ def criteria(scenario: Scenario, e: Evaluation, t: Titration) -> tuple[Criterion
                   "not cancel)", f"|part| <= {_fmt(target)} %", _largest_part(t),
                   all(abs(v) <= target for v in t.standardised_budget.values())),
         Criterion("Analyte not yet bound at the end point", f"<= {_fmt(target)} %",
-                  _fmt(-t.budget.get("analyte_unbound", 0.0)) + " %" if t.budget else "-",
-                  bool(t.budget) and -t.budget["analyte_unbound"] <= target),
+                  _fmt(t.analyte_unbound_percent) + " %" if t.budget else "-",
+                  bool(t.budget) and t.analyte_unbound_percent <= target),
         Criterion("Share of each interferent titrated at the end point (our own threshold, where its part exceeds "
                   "a tenth of the target)", f"<= {100 * COTITRATED_SHARE_MAX:g} %",
                   ", ".join(f"{m} {_fmt(100 * v)} %" for m, v in t.cotitrated.items()) or "no interferent",

@@ -183,7 +183,7 @@ def acceptance_violations(scenario: Scenario, t: Titration) -> list[tuple[str, s
     for key, part in t.standardised_budget.items():
         if abs(part) > target:
             out.append(("budget_part", f"{budget_label(key)}: {part:+.2f} % on its own (target {target:g} %)"))
-    unbound = -t.budget.get("analyte_unbound", 0.0)
+    unbound = t.analyte_unbound_percent
     if unbound > target:
         out.append(("analyte_unbound", f"{unbound:.2f} % of the analyte is still unbound at the end point "
                                        f"(at most {target:g} %)"))

@@ -199,6 +199,9 @@ def hydroxide_in_solids_mmol(titration: Titration) -> float:
 def result_formula(scenario: Scenario, method: Method) -> str:
     """How the analyst turns the titre into a concentration (and into mg/L where a formula or a single metal allows)."""
     V0, cT = scenario.sample.volume_mL, scenario.titrant_conc_M
+    own = method.strategy.result_formula(scenario, method)
+    if own is not None:
+        return own
     if method.strategy.uses_standard:
         std = method.strategy.variant(method)
         formula = (f"n({scenario.analyte_label}) [mmol] = c(titrant) x V(titrant) - c({std}) x V({std}); "

@@ -128,6 +128,14 @@ class Titration:
     determined: tuple[tuple[str, ...], ...] = ()  # the analyte groups reported (a multi-step strategy's; else the analyte)
 
     @property
+    def analyte_unbound_percent(self) -> float:
+        """The analyte not yet bound to the titrant at the end point [% of it]: the governing end point's, or the
+        largest of the steps' end points where the result is derived from several."""
+        if self.result.derived:
+            return max((-ep.budget.get("analyte_unbound", 0.0) for ep in self.endpoints if not ep.derived), default=0.0)
+        return -self.budget.get("analyte_unbound", 0.0)
+
+    @property
     def groups_determined(self) -> tuple[tuple[str, ...], ...]:
         """The analyte groups this titration reports a result for (a single titration: the sample's analyte)."""
         return self.determined or (self.sample.analyte,)

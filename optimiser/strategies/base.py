@@ -255,6 +255,10 @@ class Strategy:
         """The numbered bench steps of a composite strategy (None: the single titration's procedure)."""
         return None
 
+    def result_formula(self, scenario: Any, method: Any) -> str | None:
+        """How the titres become results, where the strategy has its own (None: the single titration's)."""
+        return None
+
     def reagent_steps(self, method: Any, V0_mL: float) -> list[str]:
         """Bench steps for what the strategy adds to a single titration after the buffer (a displacing complex)."""
         return []

@@ -99,6 +99,13 @@ class CompositeStrategy(Strategy):
                if r.id not in {method.buffer, *(a for a, _ in method.masking)}]
         return out
 
+    def result_formula(self, scenario, method) -> str | None:
+        steps = self.steps(scenario.sample, method)
+        derived = [f"{', '.join(scenario.sample.analyte)} (by difference)"] \
+            if type(self).derived is not CompositeStrategy.derived else []
+        return "; ".join(_formulas([", ".join(st.sample.analyte) for st in steps], derived, method.titrant_conc_M,
+                                   scenario.sample.volume_mL))
+
     def json_fields(self, method) -> dict:
         if not hasattr(method, "stage"):  # a search candidate: its genes
             return {"mode": self.id, "back_metal": None, **dict(getattr(method, "extra", ()))}
@@ -277,7 +284,7 @@ def stage_fields(extra: dict[str, Any], base: dict[str, Any], search: Any) -> di
     buf = bufs[int(extra.get("stage_buffer", 0)) % len(bufs)]
     total = (base.get("buffer_total_M") or 0.1) if catalogue().buffer(buf).ligand else 0.0
     stage = Method(pH=pH, buffer=buf, buffer_total_M=total, titrant=base["titrant"],
-                   titrant_conc_M=base["titrant_conc_M"], indicator=str(extra["stage_indicator"]))
+                   titrant_conc_M=base["titrant_conc_M"], indicator=stage_indicator(extra["stage_indicator"], pH, search))
     co = str(extra.get("co", "none"))
     return {"stage": stage, "co_analytes": tuple(co.split("+")) if co != "none" else ()}
 
@@ -316,7 +323,7 @@ def stage_prescreen(c, scenario) -> list[tuple[str, str]]:
         return []
     out = []
     pH = float(extra["stage_pH"])
-    ind = catalogue().indicator(str(extra["stage_indicator"]))
+    ind = catalogue().indicator(stage_indicator(extra["stage_indicator"], pH, scenario.search))
     if not ind.usable_pH[0] <= pH <= ind.usable_pH[1]:
         out.append(("indicator_pH", f"{ind.name} shows no colour change at the second step's pH {pH:.2f}"))
     if not buffers_for(pH, scenario.search.buffers):
@@ -328,10 +335,30 @@ def stage_prescreen(c, scenario) -> list[tuple[str, str]]:
     return out
 
 
+def stage_indicator(gene, pH: float, search: Any) -> str:
+    """The stage's indicator: a name, or (a search gene) the n-th of the searched indicators usable at its pH, so
+    that the search does not spend its evaluations on a dye that shows no change there."""
+    if isinstance(gene, str):
+        return gene
+    from ..reagents import catalogue
+
+    cat = catalogue()
+    usable = [i for i in search.indicators if cat.indicator(i).usable_pH[0] <= pH <= cat.indicator(i).usable_pH[1]]
+    usable = usable or list(search.indicators)
+    return usable[int(gene) % len(usable)]
+
+
 def stage_genes(sample: Sample, search: Any) -> dict[str, tuple]:
     """The genes of a stage: its pH, its buffer pick, its indicator, and what it determines."""
     return {"stage_pH": ("real", *search.pH_range), "stage_buffer": ("choice", [0, 1]),
-            "stage_indicator": ("choice", list(search.indicators)), "co": ("choice", co_analyte_options(sample))}
+            "stage_indicator": ("choice", list(range(min(3, len(search.indicators))))),
+            "co": ("choice", co_analyte_options(sample))}
+
+
+def _formulas(read: list[str], derived: list[str], cT: float, V0: float) -> list[str]:
+    out = [f"c({label}) [mmol/L] = {cT:g} mol/L x V{k + 1} [mL] / {V0:g} mL x 1000" for k, label in enumerate(read)]
+    out += [f"c({label}) [mmol/L] = {cT:g} mol/L x (V1 - V2) [mL] / {V0:g} mL x 1000" for label in derived]
+    return out
 
 
 def composite_steps(scenario, method, t, steps: list[Step], between=None) -> list[str]:
@@ -357,6 +384,9 @@ def composite_steps(scenario, method, t, steps: list[Step], between=None) -> lis
             text = between(k, st)
             if text:
                 out.append(text + ".")
+        if tk.precipitates_start and m.buffer_info.strong_alkali and tk.endpoint_mL is not None:
+            out.append(f"Add about 90 % of the expected titrant ({0.9 * tk.endpoint_mL:.1f} mL) before raising the pH, "
+                       f"so that {', '.join(tk.precipitates_start)} does not carry down the analyte (common practice).")
         if new or m.buffer != steps[k - 1].method.buffer or m.pH != steps[k - 1].method.pH:
             recipe = buffer_recipe(m.buffer_info, m.buffer_total_M if m.buffer_info.ligand else 0.0, m.pH, V0,
                                    sample.ionic_strength_M, sample.temperature_C)
@@ -369,12 +399,8 @@ def composite_steps(scenario, method, t, steps: list[Step], between=None) -> lis
                else "Continue titrating")
         out.append(f"{dye} with {cT:g} M {m.titrant} {colour}: V{k + 1} (predicted {reading}; "
                    f"{', '.join(st.sample.analyte)}).")
-    formulas = []
-    for k, ep in enumerate(t.endpoints):
-        if ep.derived:
-            formulas.append(f"c({ep.label}) [mmol/L] = {cT:g} mol/L x (V1 - V2) [mL] / {V0:g} mL x 1000")
-        else:
-            formulas.append(f"c({ep.label}) [mmol/L] = {cT:g} mol/L x V{k + 1} [mL] / {V0:g} mL x 1000")
+    formulas = _formulas([ep.label for ep in t.endpoints if not ep.derived],
+                         [ep.label for ep in t.endpoints if ep.derived], cT, V0)
     out.append("Reagent blank: carry the same volume of deionised water through these steps with every reagent and "
                "subtract its titres (common practice).")
     out.append("Calculate: " + "; ".join(formulas) + ".")
