@@ -17,11 +17,15 @@ from .base import Array, Plan, Strategy, budget_parts, indicator_bound
 
 # metal -> the complex added and its usual concentration in the aliquot [mol/L], with its source.
 COMPLEXES: dict[str, dict] = {
-    "Mg": {"dose_M": 2.5e-4, "pH_range": (9.0, 11.0),  # the hardness buffers' pH, 10.0 +/- 0.1 (Standard Methods 2340 C) "salt": "magnesium-EDTA (Na2MgY), or equal amounts of MgSO4.7H2O and Na2H2Y.2H2O",
+    # pH_range: the hardness buffers' pH, 10.0 +/- 0.1 (Standard Methods 2340 C), widened to 9-11 (our own choice)
+    "Mg": {"dose_M": 2.5e-4, "pH_range": (9.0, 11.0),
+           "salt": "magnesium-EDTA (Na2MgY), or equal amounts of MgSO4.7H2O and Na2H2Y.2H2O",
            # Standard Methods 2340 C: the ammonia buffer carries Mg-EDTA (standards.md); the amount from memory:
            # 1.179 g Na2H2Y.2H2O + 0.780 g MgSO4.7H2O per 250 mL of buffer, 1-2 mL of buffer per 50 mL of sample.
            "source": "Standard Methods 2340 C (Mg-EDTA in the buffer); dose from memory"},
-    "Zn": {"dose_M": 2.5e-4, "pH_range": (5.0, 11.0),  # where zinc indicators (xylenol orange, EBT) serve, from memory "salt": "zinc-EDTA (Na2ZnY), or equal amounts of ZnSO4.7H2O and Na2H2Y.2H2O",
+    # pH_range: where zinc indicators (xylenol orange, EBT) serve, from memory
+    "Zn": {"dose_M": 2.5e-4, "pH_range": (5.0, 11.0),
+           "salt": "zinc-EDTA (Na2ZnY), or equal amounts of ZnSO4.7H2O and Na2H2Y.2H2O",
            # common practice: ZnY (or CuY) serves in the same way where the indicator responds to zinc (EBT, PAN)
            "source": "common practice; dose taken as for Mg-EDTA"},
 }
