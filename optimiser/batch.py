@@ -48,7 +48,7 @@ def method_text(candidate: Any) -> str:
     s = strategy(candidate.mode)
     return (f"{candidate.titrant}, pH {candidate.pH:.2f} ({candidate.buffer}), {candidate.indicator}"
             + (f", masking {', '.join(a for a, _ in candidate.masking)}" if candidate.masking else "")
-            + (f", {s.describe(candidate)}" if s.uses_standard else ""))
+            + (f", {s.describe(candidate)}" if s.family is not None else ""))
 
 
 def run_one(path: str, out_dir: str, seed: int, base: str | None = None, report_format: str = DEFAULT_FORMAT) -> BatchRow:

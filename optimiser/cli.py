@@ -348,7 +348,7 @@ def _method_line(sc, method) -> str:
     """One line naming a simulated method: titrant, pH, buffer, indicator, masking, and its standard if it needs one."""
     buf, s = method.buffer_info, method.strategy
     masking = f", masking {', '.join(f'{m} {c:g} M' for m, c in method.masking)}" if method.masking else ""
-    how = f", {s.describe(method)}" if s.uses_standard else ""
+    how = f", {s.describe(method)}" if s.family is not None else ""
     return (f"{sc.name}: {method.titrant} {method.titrant_conc_M:g} M at pH {method.pH:g} "
             f"({buf.name}{f', {method.buffer_total_M:g} M' if buf.ligand else ''}), {method.indicator_info.name}{masking}{how}")
 

@@ -105,7 +105,9 @@ class MethodProblem(Problem):
     def modes(scenario: Scenario) -> tuple[str, ...]:
         """The scenario's strategies that apply to its sample (each strategy says where it does)."""
         sp = scenario.search
-        return tuple(m for m in sp.modes if strategy(m).applies(scenario.sample, sp)) or sp.modes[:1]
+        listed = "modes" in ((scenario.as_read or {}).get("search") or {})
+        return tuple(m for m in sp.modes if strategy(m).applies(scenario.sample, sp)
+                     or (listed and strategy(m).applies_when_asked(scenario.sample, sp))) or sp.modes[:1]
 
     def decode(self, x: dict) -> Candidate:
         sp = self.scenario.search

@@ -53,6 +53,8 @@ def conditional_figure(analysis: Analysis) -> str:
     for i, m in enumerate(analysis.metals):
         st = _style(i)
         role = "analyte" if m in result.scenario.sample.analyte else "interferent"
+        if not np.any(np.isfinite(cc[m])):  # no constant with this titrant: no curve (the table says so)
+            continue
         ax.plot(pH, cc[m], label=f"{m} ({role}), with the method's ligands", **st)
         st2 = dict(st, linestyle=":", marker=None, alpha=0.6)
         ax.plot(pH, cc[m + " (no ligands)"], label=f"{m}, no buffer or masking ligand", **st2)
@@ -96,7 +98,8 @@ def titration_figure(analysis: Analysis) -> str:
     fig, ax = plt.subplots(figsize=(6.4, 3.8))
     order = [m for m in analysis.metals if m in t.pM] + [m for m in t.pM if m not in analysis.metals]
     for i, m in enumerate(order):
-        ax.plot(t.volume_mL, t.pM[m], label=f"p{m}", **_style(i))
+        if np.any(np.isfinite(t.pM[m])):  # a metal no step's solution holds has no curve
+            ax.plot(t.volume_mL, t.pM[m], label=f"p{m}", **_style(i))
     lo_hi = None
     if t.endpoint_mL is not None and t.sharpness_mL is not None and len(t.endpoints) == 1:
         lo_hi = (t.endpoint_mL - t.sharpness_mL / 2, t.endpoint_mL + t.sharpness_mL / 2)

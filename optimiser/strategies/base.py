@@ -222,6 +222,11 @@ class Strategy:
         """Whether the strategy can serve this sample with this search space (a search leaves it out where not)."""
         return True
 
+    def applies_when_asked(self, sample: Sample, search: Any) -> bool:
+        """Whether the strategy can serve the sample where the scenario lists it in ``search.modes`` (by default as
+        :meth:`applies`; a strategy searched by default only for some samples may serve more when asked)."""
+        return self.applies(sample, search)
+
     def genes(self, sample: Sample, search: Any) -> dict[str, tuple]:
         """The strategy's own variables for a search, beyond the method's (pH, buffer, titrant, masking, indicator,
         ``back_metal``): name -> ``("real", low, high)`` or ``("choice", options)``."""

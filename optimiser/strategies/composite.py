@@ -58,8 +58,13 @@ def step_text(metals, method) -> str:
 
 def _candidate_text(strategy, c) -> str:
     """A search candidate in words: the strategy and its genes."""
-    genes = ", ".join(f"{k} {v}" for k, v in getattr(c, "extra", ()))
-    return f"{strategy.label}" + (f" ({genes})" if genes else "")
+    extra = dict(getattr(c, "extra", ()))
+    parts = []
+    if "stage_pH" in extra:
+        parts.append(f"other titration at pH {float(extra['stage_pH']):.2f}")
+    if extra.get("co", "none") != "none":
+        parts.append(f"for {extra['co']}")
+    return strategy.label + (f" ({', '.join(parts)})" if parts else "")
 
 
 class CompositeStrategy(Strategy):
@@ -299,15 +304,18 @@ def log_K_ML(metal: str, ligand: str) -> float:
 
 
 def needs_another_titration(sample: Sample, search: Any) -> bool:
-    """Whether a multi-step strategy has a reason to be searched: the scenario names several analytes to determine
-    apart, or an interferent binds a searched titrant more strongly than the analyte (log K of ML), so that no pH
-    titrates the analyte alone and practice titrates the interferent first or takes a difference."""
-    if sample.groups:
-        return True
-    log_K = log_K_ML
+    """Whether a strategy of several titrations is searched: where the scenario names several analytes to determine
+    apart (its ``analyte`` list), which is what a sequential titration and a difference are for. A scenario with one
+    analyte may still ask for them by name (``search.modes``; ``optimiser simulate --mode``)."""
+    return bool(sample.groups)
+
+
+def interferent_binds_more(sample: Sample, search: Any) -> bool:
+    """Whether an interferent binds a searched titrant more strongly than the analyte (log K of ML): no pH then
+    titrates the analyte alone, and practice titrates the interferent first or takes a difference."""
     for t in search.titrants:
-        weakest = min(log_K(a, t) for a in sample.analyte)
-        if np.isfinite(weakest) and any(log_K(m, t) > weakest for m in sample.interferents):
+        weakest = min(log_K_ML(a, t) for a in sample.analyte)
+        if np.isfinite(weakest) and any(log_K_ML(m, t) > weakest for m in sample.interferents):
             return True
     return False
 

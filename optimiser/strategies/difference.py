@@ -14,7 +14,7 @@ from __future__ import annotations
 
 from ..errors import InputError
 from ..method import Sample
-from .composite import CompositeStrategy, _candidate_text, Step, needs_another_titration, stage_fields, stage_genes, stage_prescreen, step_text
+from .composite import CompositeStrategy, _candidate_text, Step, interferent_binds_more, needs_another_titration, stage_fields, stage_genes, stage_prescreen, step_text
 
 
 class DifferenceDetermination(CompositeStrategy):
@@ -36,6 +36,9 @@ class DifferenceDetermination(CompositeStrategy):
 
     def applies(self, sample, search) -> bool:
         return needs_another_titration(sample, search)
+
+    def applies_when_asked(self, sample, search) -> bool:
+        return needs_another_titration(sample, search) or interferent_binds_more(sample, search)
 
     def genes(self, sample, search) -> dict[str, tuple]:
         return stage_genes(sample, search)

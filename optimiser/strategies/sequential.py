@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from ..errors import InputError
 from ..method import Sample
-from .composite import CompositeStrategy, _candidate_text, Step, co_analyte_options, needs_another_titration, stage_fields, stage_genes, stage_prescreen, step_text
+from .composite import CompositeStrategy, _candidate_text, Step, co_analyte_options, interferent_binds_more, needs_another_titration, stage_fields, stage_genes, stage_prescreen, step_text
 
 
 class SequentialTitration(CompositeStrategy):
@@ -31,6 +31,9 @@ class SequentialTitration(CompositeStrategy):
 
     def applies(self, sample, search) -> bool:
         return needs_another_titration(sample, search)
+
+    def applies_when_asked(self, sample, search) -> bool:
+        return needs_another_titration(sample, search) or interferent_binds_more(sample, search)
 
     def genes(self, sample, search) -> dict[str, tuple]:
         return stage_genes(sample, search)
