@@ -320,8 +320,9 @@ def alternatives(result: SearchResult) -> tuple[AlternativeRow, ...]:
             c = e.candidate
             rows.append(AlternativeRow(
                 strategy=strat, pH=c.pH, buffer=c.buffer, titrant=c.titrant,
-                masking=", ".join(f"{a} {d * 1000:.3g} mM" for a, d in c.masking), indicator=c.indicator,
-                mode=_mode_text(c), error=e.error_percent, margin=e.margin, sharpness=e.sharpness_mL,
+                masking=", ".join(f"{a} {d * 1000:.3g} mM" for a, d in (e.titration.method.masking if e.titration
+                                                                        else c.masking)), indicator=c.indicator,
+                mode=_mode_text(e.titration.method if e.titration else c), error=e.error_percent, margin=e.margin, sharpness=e.sharpness_mL,
                 hazard=HAZARD_NAMES[e.hazard], tradeoff=tradeoff(e, rec)))
     return tuple(rows)
 

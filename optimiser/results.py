@@ -38,8 +38,9 @@ def _method_json(result: SearchResult, e: Evaluation) -> dict[str, Any]:
     t = e.titration
     return {
         "pH": _r(c.pH, 3), "buffer": c.buffer, "titrant": c.titrant, "titrant_conc_M": result.scenario.titrant_conc_M,
-        "masking": [{"agent": a, "conc_M": _r(d, 6)} for a, d in c.masking], "indicator": c.indicator,
-        **strategy(c.mode).json_fields(c),  # "mode", "back_metal"
+        "masking": [{"agent": a, "conc_M": _r(d, 6)} for a, d in (t.method.masking if t is not None else c.masking)],
+        "indicator": c.indicator,
+        **strategy(c.mode).json_fields(t.method if t is not None else c),  # "mode", "back_metal", the strategy's own
         "predicted_error_percent": _r(e.error_percent),
         "standardised_error_percent": _r(e.standardised_error_percent),
         "error_budget": {k: _r(v, 4) for k, v in t.budget.items()} if t is not None else {},
