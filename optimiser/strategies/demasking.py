@@ -92,8 +92,6 @@ class DemaskingTitration(CompositeStrategy):
         return did, d, d["mol_per_mol_masking"] * masking_dose
 
     def steps(self, sample: Sample, method) -> list[Step]:
-        from .. import findings as fd  # noqa: F401  (the finding is added by the combined titration below)
-
         single = method.with_mode("direct")
         did, d, c = self.dose(method)
         removed = {d["ligand"]: d["mol_ligand_per_mol"] * c * sample.volume_mL}
