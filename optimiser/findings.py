@@ -90,8 +90,10 @@ WORDING: dict[str, Callable[[Mapping[str, Any]], str]] = {
                              f"{v['titrant_mmol']:.4f} mmol of titrant and {v['volume_mL']:.2f} mL already added."),
     "second_aliquot": lambda v: (f"A second aliquot of the sample is titrated under other conditions; {v['analyte']} is the "
                                  f"difference of the two titres."),
-    "demasking": lambda v: (f"{v['agent']} ({v['dose_M']:g} M) destroys {v['ratio']:g} mol of {v['ligand']} per mol "
-                            f"({v['note']}); the metals it held are then titrated as the constants say."),
+    "demasking": lambda v: (f"{v['agent']} ({v['dose_M']:.3g} M) destroys {v['ratio']:g} mol of {v['ligand']} per mol "
+                            f"({v['note']}); the metals it held are then titrated as the constants say"
+                            + (f", while {_join(v['inert'])} stay(s) in {v['ligand']} complexes taken as inert "
+                               "(a stated assumption)." if v.get("inert") else ".")),
     "step_problem": lambda v: f"Step {v['step']}: {v['text']}",
     # read-out
     "indicator_unbound": lambda v: (f"{v['indicator']} is hardly bound by the metals at pH {v['pH']:.2f} "

@@ -201,7 +201,8 @@ def robustness_figure(analysis: Analysis) -> str:
         if agent in result.robust_dose:
             lo, hi = result.robust_dose[agent]
             ax.axvspan(lo * 1000, hi * 1000, color="0.75", alpha=0.6)
-        d0 = dict(result.recommended.candidate.masking)[agent]
+        t = result.recommended_titration  # its masking as the strategy completes it (demasking adds its agent)
+        d0 = dict(t.method.masking if t is not None else result.recommended.candidate.masking)[agent]
         ax.axvline(d0 * 1000, color="black", lw=1, linestyle="--")
         ax.xaxis.set_major_formatter(matplotlib.ticker.FormatStrFormatter("%g"))
         ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())

@@ -25,9 +25,14 @@ DEMASKERS: dict[str, dict] = {
         "masking": "cyanide",
         "ligand": "cyanide",
         "mol_ligand_per_mol": 1.0,  # HCHO + HCN -> HOCH2CN (glycolonitrile), from memory
-        "mol_per_mol_masking": 1.0,  # enough for the cyanide added (our own choice, stated in the finding)
+        "mol_per_mol_masking": 1.0,  # at most the cyanide added (our own choice, stated in the finding)
+        # the metals it releases from their cyanide complexes; copper(I), nickel, cobalt, mercury and iron stay masked
+        # (common practice, from memory): it is dosed to destroy the cyanide that these do not hold
+        "releases": ("Zn", "Cd"),
         "molarity_M": 1.5,  # formalin 37 % is 13.3 M; diluted 1 + 8: about 1.5 M (from memory)
-        "note": "formaldehyde + cyanide -> glycolonitrile; copper(I) cyanide is not attacked in the cold (common practice)",
+        "note": "formaldehyde + cyanide -> glycolonitrile, dosed to destroy the cyanide that the metals it does not "
+                "release (copper(I), nickel, ...) hold in their highest complexes; these are not attacked in the cold "
+                "(common practice)",
         "hazard": 3,
         "cautions": (
             "Formaldehyde is a carcinogen (may cause cancer), toxic if inhaled or swallowed and a skin sensitiser: "
@@ -40,6 +45,11 @@ DEMASKERS: dict[str, dict] = {
         "source": "common practice (demasking of zinc from cyanide by formaldehyde); amounts from memory",
     },
 }
+
+
+def _highest(metal: str, ligand: str) -> int:
+    """The most ligands one metal ion binds in the database's complexes (0 where it has none)."""
+    return max((k.stoichiometry.get(ligand, 0) for k in database().complexes.get((metal, ligand), ())), default=0)
 
 
 class DemaskingTitration(CompositeStrategy):
@@ -67,7 +77,7 @@ class DemaskingTitration(CompositeStrategy):
     def applies(self, sample, search) -> bool:
         db = database()
         for d in DEMASKERS.values():
-            if d["masking"] in search.masking:
+            if d["masking"] in search.masking and all(a in d["releases"] for a in sample.analyte):
                 lig = catalogue().masking_agent(d["masking"]).ligand
                 if all(db.complexes.get((a, lig)) for a in sample.analyte):
                     return True
@@ -85,16 +95,44 @@ class DemaskingTitration(CompositeStrategy):
         co = str(extra.get("co", "none"))
         return {"masking": masking, "co_analytes": tuple(co.split("+")) if co != "none" else ()}
 
-    def dose(self, method) -> tuple[str, dict, float]:
-        """The demasking agent, its data, and its amount per aliquot-litre [mol/L of the aliquot]."""
+    def dose(self, method, sample: Sample | None = None) -> tuple[str, dict, float]:
+        """The demasking agent, its data, and its amount [mol/L of the aliquot]: enough to destroy the masking ligand
+        that the metals it does not release do not hold (each in its highest complex of the database, after any
+        redox step of the masking agent); the masking agent's dose where no sample is given."""
         did, d = self.demasker(method)
         masking_dose = sum(c for a, c in method.masking if a == d["masking"])
-        return did, d, d["mol_per_mol_masking"] * masking_dose
+        c = d["mol_per_mol_masking"] * masking_dose
+        if sample is not None:
+            agent = catalogue().masking_agent(d["masking"])
+            kept = 0.0
+            for m, conc in sample.metals.items():
+                if m in d["releases"]:
+                    continue
+                rule = agent.reduces.get(m)
+                form = rule["to"] if rule else m
+                kept += conc * (_highest(form, d["ligand"]) + (rule["mol_reagent_per_mol_metal"] if rule else 0.0))
+            c = min(c, max(masking_dose - kept, 0.0) / d["mol_ligand_per_mol"])
+        return did, d, c
+
+    def removed(self, sample: Sample, method) -> dict[str, float]:
+        """What the demasking takes out of the equilibrium [mmol]: the masking ligand it destroys (all that the metals
+        it does not release do not hold), and those metals with the ligand they hold, as inert complexes (not attacked
+        in the cold, common practice; a stated assumption)."""
+        did, d = self.demasker(method)
+        agent = catalogue().masking_agent(d["masking"])
+        V0 = sample.volume_mL
+        out = {d["ligand"]: sum(c for a, c in method.masking if a == d["masking"]) * V0}
+        for m, conc in sample.metals.items():
+            rule = agent.reduces.get(m)
+            form = rule["to"] if rule else m
+            if m not in d["releases"] and _highest(form, d["ligand"]) > 0:
+                out[form] = out.get(form, 0.0) + conc * V0
+        return out
 
     def steps(self, sample: Sample, method) -> list[Step]:
         single = method.with_mode("direct")
-        did, d, c = self.dose(method)
-        removed = {d["ligand"]: d["mol_ligand_per_mol"] * c * sample.volume_mL}
+        did, d, c = self.dose(method, sample)
+        removed = self.removed(sample, method)
         released = Sample(sample.volume_mL, sample.metals, sample.analyte, sample.ionic_strength_M,
                           sample.temperature_C, sample.acid_M)
         text = step_text(sample.analyte, method) + f", after {d['name']}"
@@ -112,9 +150,10 @@ class DemaskingTitration(CompositeStrategy):
         from .. import findings as fd
 
         t = super().finish(sample, method, steps, ts)
-        did, d, c = self.dose(method)
+        did, d, c = self.dose(method, sample)
+        held = [m for m in self.removed(sample, method) if m != d["ligand"]]
         note = fd.assumption("demasking", agent=d["name"], dose_M=c, ratio=d["mol_ligand_per_mol"], ligand=d["ligand"],
-                             note=d["note"])
+                             note=d["note"], inert=held)
         return replace(t, findings=(*t.findings, note))
 
     def hazards(self, method) -> tuple[int, ...]:
@@ -144,7 +183,7 @@ class DemaskingTitration(CompositeStrategy):
     def bench_steps(self, scenario, method, t) -> list[str] | None:
         from .composite import composite_steps
 
-        did, d, c = self.dose(method)
+        did, d, c = self.dose(method, scenario.sample)
         V0 = scenario.sample.volume_mL
 
         def between(k, step) -> str:
