@@ -227,8 +227,8 @@ def criteria(scenario: Scenario, e: Evaluation, t: Titration) -> tuple[Criterion
                   "not cancel)", f"|part| <= {_fmt(target)} %", _largest_part(t),
                   all(abs(v) <= target for v in t.standardised_budget.values())),
         Criterion("Analyte not yet bound at the end point", f"<= {_fmt(target)} %",
-                  _fmt(-t.budget.get("analyte_unbound", 0.0)) + " %" if t.budget else "-",
-                  bool(t.budget) and -t.budget["analyte_unbound"] <= target),
+                  _fmt(t.analyte_unbound_percent) + " %" if t.budget else "-",
+                  bool(t.budget) and t.analyte_unbound_percent <= target),
         Criterion("Share of each interferent titrated at the end point (our own threshold, where its part exceeds "
                   "a tenth of the target)", f"<= {100 * COTITRATED_SHARE_MAX:g} %",
                   ", ".join(f"{m} {share_percent(100 * v)} %" for m, v in t.cotitrated.items()) or "no interferent",
@@ -345,8 +345,10 @@ def alternatives(result: SearchResult) -> tuple[AlternativeRow, ...]:
             c = e.candidate
             rows.append(AlternativeRow(
                 strategy=strat, pH=c.pH, buffer=short_name(cat.buffer(c.buffer).name), titrant=c.titrant,
-                masking=", ".join(f"{short_name(cat.masking_agent(a).name)} {d * 1000:.3g} mmol/L" for a, d in c.masking),
-                indicator=short_name(cat.indicator(c.indicator).name), mode=_mode_text(c), error=e.standardised_error_percent,
+                masking=", ".join(f"{short_name(cat.masking_agent(a).name)} {d * 1000:.3g} mmol/L"
+                                  for a, d in (e.titration.method.masking if e.titration else c.masking)),
+                indicator=short_name(cat.indicator(c.indicator).name),
+                mode=_mode_text(e.titration.method if e.titration else c), error=e.standardised_error_percent,
                 margin=e.margin, sharpness=e.sharpness_mL, hazard=HAZARD_NAMES[e.hazard], tradeoff=tradeoff(e, rec)))
     return tuple(rows)
 
@@ -386,6 +388,8 @@ def safety(method: Method | None, bench: BenchMethod | None = None) -> tuple[Saf
     ids = [method.buffer, method.titrant, method.indicator, *(a for a, _ in method.masking)]
     items += [SafetyItem(rule.name, HAZARD_NAMES[rule.hazard], tuple(rule.cautions))
               for rule in catalogue().safety_rules_for(ids)]  # rules on combinations of reagents (reagents.yaml)
+    # what the strategy adds (a second step's buffer, a demasking agent)
+    items += [SafetyItem(name, HAZARD_NAMES[h], tuple(c)) for name, h, c in method.strategy.reagent_cautions(method)]
     conflicts = catalogue().safety_conflicts(c for item in items for c in item.cautions)
     if conflicts:
         raise DataError("contradicting safety instructions for one method: "

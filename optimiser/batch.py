@@ -57,7 +57,7 @@ def method_text(method: Any) -> str:
     return (f"{method.titrant} {method.titrant_conc_M:g} mol/L, pH {method.pH:.2f} ({buffer}), "
             f"{short_name(method.indicator_info.name)}"
             + (f", masking {', '.join(masking)}" if masking else "")
-            + (f", {s.describe(method)}" if s.uses_standard else ""))
+            + (f", {s.describe(method)}" if s.family is not None else ""))
 
 
 def largest_part_text(t: Any) -> str:

@@ -233,6 +233,18 @@ class _Writer:
         self.rows.append(StockSolution(row.role, label, row.per_litre, row.shelf_life, row.hazards, row.source))
 
 
+_STEP_WRITERS: list[_Writer] = []  # the writers of a composite strategy's steps while one written method is made
+
+
+def step_writer(scenario: Scenario, method: Method, t: Titration) -> _Writer:
+    """A writer for one step of a multi-step strategy (:func:`optimiser.strategies.composite.composite_steps`): its
+    additions and stock solutions are gathered into the written method being made."""
+    w = _Writer(scenario, method, t)
+    w.adds.clear()
+    _STEP_WRITERS.append(w)
+    return w
+
+
 def written_method(scenario: Scenario, method: Method, t: Titration, formula: str) -> WrittenMethod:
     """The stocks, standardisation, steps, calculation and quality control of ``method`` as simulated in ``t``."""
     from .procedure import STRONG_BASE, recipe_kind
@@ -267,6 +279,7 @@ def written_method(scenario: Scenario, method: Method, t: Titration, formula: st
         steps.append(step + ".")
     steps.append(w.buffer_step())
     steps += w.masking_steps(after_buffer=True)
+    steps += method.strategy.reagent_steps(method, V0)  # what the strategy adds after the buffer (a displacing complex)
     if t.sample.temperature_C != T:  # the indicator's working temperature (method.as_titrated)
         steps.append(f"Warm the solution to {t.sample.temperature_C:g} degC on a hot plate and keep it within about 5 degC "
                      f"of that to the end point: {method.indicator_info.name} is read at that temperature in published "
@@ -288,6 +301,16 @@ def written_method(scenario: Scenario, method: Method, t: Titration, formula: st
                  "and titrate it to the same colour (Vb, common practice).")
     steps.append("Titrate a second aliquot of the sample (duplicate) and calculate as below.")
     standardisation = w.standardisation(titrant)
+    _STEP_WRITERS.clear()
+    own = method.strategy.bench_steps(scenario, method, t)  # a multi-step strategy writes its own steps
+    if own is not None:
+        # the temperature first; the strategy's own first step is the standardisation, written above already
+        steps = steps[:1] + list(own[1:])
+        seen = {r.name for r in w.rows}
+        for wk in _STEP_WRITERS:
+            w.rows += [r for r in wk.rows if r.name not in seen and not seen.add(r.name)]
+            w.adds += wk.adds
+    _STEP_WRITERS.clear()
     target = scenario.targets.max_error_percent
     calculation = _calculation(scenario, method, V_x, formula)
     qc = (f"Reagent blank with every batch (step {len(steps) - 1}); a blank titre that grows from batch to batch points to "

@@ -28,6 +28,9 @@ class Candidate:
         The strategy's id.
     back_metal : str
         The strategy's own choice (the back-titration standard), where it has one.
+    extra : tuple of (name, value)
+        The strategy's own genes (:meth:`~optimiser.strategies.base.Strategy.genes`: a multi-step strategy's other
+        conditions), sorted by name; empty for a strategy without any.
     """
 
     pH: float
@@ -38,12 +41,15 @@ class Candidate:
     indicator: str
     mode: str
     back_metal: str
+    extra: tuple[tuple[str, object], ...] = ()
 
     def method(self, scenario: Scenario) -> Method:
         buf = catalogue().buffer(self.buffer)
-        return Method(pH=self.pH, buffer=self.buffer, buffer_total_M=10 ** self.log_buffer if buf.ligand else 0.0,
-                      titrant=self.titrant, titrant_conc_M=scenario.titrant_conc_M, masking=self.masking,
-                      indicator=self.indicator, mode=self.mode, back_metal=self.back_metal)
+        base = dict(pH=self.pH, buffer=self.buffer, buffer_total_M=10 ** self.log_buffer if buf.ligand else 0.0,
+                    titrant=self.titrant, titrant_conc_M=scenario.titrant_conc_M, masking=self.masking,
+                    indicator=self.indicator, mode=self.mode, back_metal=self.back_metal)
+        base.update(self.strategy.method_fields(dict(self.extra), scenario.sample, scenario.search, base))
+        return Method(**base)
 
     @property
     def strategy(self):
@@ -64,7 +70,7 @@ class Candidate:
     def key(self) -> tuple:
         return (round(self.pH, 3), self.buffer, round(self.log_buffer, 2), self.titrant,
                 tuple((a, round(math.log10(c), 2)) for a, c in self.masking), self.indicator, self.mode,
-                self.strategy.variant(self))
+                self.strategy.variant(self), tuple((k, round(v, 3) if isinstance(v, float) else v) for k, v in self.extra))
 
 
 def buffers_for(pH: float, allowed: Sequence[str]) -> list[str]:

@@ -155,6 +155,12 @@ def build_parser() -> argparse.ArgumentParser:
                    help="the back-titration standard: {standards} (default %(default)s)")
     s.add_argument("--titrant-conc", metavar="M", help=f"override the scenario's titrant concentration, 0.0001 to 1 M "
                                                         f"({CONC_HELP})")
+    s.add_argument("--stage-pH", metavar="PH", help="the other titration of a multi-step mode (sequential: the first "
+                   "step in the same aliquot; difference: the second aliquot): its pH")
+    s.add_argument("--stage-buffer", metavar="NAME[=CONC]", help="... its buffer (default: one that holds the pH)")
+    s.add_argument("--stage-indicator", metavar="NAME", help="... its indicator (default: --indicator)")
+    s.add_argument("--co", default="", metavar="METAL[+METAL]", help="the metals that other titration determines (a "
+                   "demasking mode's first titration)")
     s.add_argument("--json", action="store_true", help="print a JSON document (with the whole curve) instead of text")
 
     r = sub.add_parser("run", help="search a scenario (the built-in demo by default) and write its report",
@@ -385,16 +391,23 @@ def _simulate_method(a, sc):
     cT = sc.titrant_conc_M
     if a.titrant_conc is not None:
         cT = in_range(molarity(a.titrant_conc, "--titrant-conc"), 1e-4, 1.0, "--titrant-conc", "mol/L")
+    stage = None
+    if getattr(a, "stage_pH", None) is not None:
+        stage_pH = _number(a.stage_pH, "--stage-pH", 0, 14)
+        sbuf, stotal = _simulate_buffer(argparse.Namespace(buffer=a.stage_buffer), stage_pH)
+        stage = Method(pH=stage_pH, buffer=sbuf.id, buffer_total_M=stotal, titrant=a.titrant, titrant_conc_M=cT,
+                       indicator=a.stage_indicator or a.indicator)
+    co = tuple(m for m in (getattr(a, "co", "") or "").split("+") if m.strip())
     return Method(pH=pH, buffer=buf.id, buffer_total_M=total, titrant=a.titrant, titrant_conc_M=cT,
                   masking=tuple(_pair(x, "--masking") for x in a.masking), indicator=a.indicator, mode=a.mode,
-                  back_metal=a.back_metal)
+                  back_metal=a.back_metal, stage=stage, co_analytes=co)
 
 
 def _method_line(sc, method) -> str:
     """One line naming a simulated method: titrant, pH, buffer, indicator, masking, and its standard if it needs one."""
     buf, s = method.buffer_info, method.strategy
     masking = f", masking {', '.join(f'{m} {c:g} M' for m, c in method.masking)}" if method.masking else ""
-    how = f", {s.describe(method)}" if s.uses_standard else ""
+    how = f", {s.describe(method)}" if s.family is not None else ""
     return (f"{sc.name}: {method.titrant} {method.titrant_conc_M:g} M at pH {method.pH:g} "
             f"({buf.name}{f', {method.buffer_total_M:g} M' if buf.ligand else ''}), {method.indicator_info.name}{masking}{how}")
 
@@ -411,9 +424,24 @@ def _endpoint_lines(t) -> list[str]:
             + ("  too gradual" if t.too_gradual else "")]
 
 
+def _step_lines(t) -> list[str]:
+    """A multi-step strategy's end points, one line each (none for a single titration)."""
+    if len(t.endpoints) < 2:
+        return []
+    out = []
+    for ep in t.endpoints:
+        vol = "none" if ep.volume_mL is None else f"{ep.volume_mL:.3f} mL"
+        err = "-" if ep.error_percent is None else f"{ep.error_percent:+.3f} %"
+        std = "" if ep.standardised_percent is None else f" ({ep.standardised_percent:+.3f} % after standardisation)"
+        out.append(f"  {printable(ep.step)}: {printable(ep.label)} {vol}, error {err}{std}, colour "
+                   f"{ep.colour_change[0]} -> {ep.colour_change[1]}")
+    return out
+
+
 def _titration_lines(t) -> list[str]:
     """What ``optimiser simulate`` prints about a simulated titration, after the method's line."""
     lines = [f"  equivalence: {t.equivalence_mL:.3f} mL" + (f"  (after {t.excess_mL:.3f} mL titrant excess)" if t.excess_mL else "")]
+    lines += _step_lines(t)
     lines += _endpoint_lines(t)
     lines += _budget_lines(t)
     if t.cotitrated:

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 from . import objectives as ob
 from .candidate import Candidate, buffers_for
-from .errors import ConvergenceError, InapplicableMethodError, MissingConstantError
+from .errors import ConvergenceError, InapplicableMethodError, InputError, MissingConstantError
 from .scenario import Scenario
 from .titration import Titration, simulate_many
 
@@ -108,7 +108,20 @@ class Evaluator:
     def _simulate(self, to_sim: Sequence[Candidate], n_points: int | None = None) -> tuple[list[Titration | None], list]:
         n_points = n_points or self.n_points
         errors: list = []
-        methods = [c.method(self.scenario) for c in to_sim]
+        methods, bad = [], {}
+        for k, c in enumerate(to_sim):
+            try:
+                methods.append(c.method(self.scenario))
+            except InputError as exc:  # a strategy's own genes it refuses (a step that is not a single titration)
+                bad[k] = exc
+        if bad:
+            good = [c for k, c in enumerate(to_sim) if k not in bad]
+            sims, errs = self._simulate(good)
+            idx = [k for k in range(len(to_sim)) if k not in bad]
+            out: list = [None] * len(to_sim)
+            for j, k in enumerate(idx):
+                out[k] = sims[j]
+            return out, [(idx[j], e) for j, e in errs] + [(k, InapplicableMethodError(str(e))) for k, e in bad.items()]
         if not methods:
             return [], errors
         try:
@@ -138,7 +151,7 @@ class Evaluator:
         margin = ob.selectivity_margin(sc, c, t) if t is not None else None
         std_err = t.standardised_error_percent if t is not None else None
         facts = ob.Facts(candidate=c, titration=t, error_percent=std_err, margin=margin, sharpness_mL=sharp,
-                         hazard=ob.hazard_of(c))
+                         hazard=ob.hazard_of(c, sc))
         kinds = tuple(dict.fromkeys(kind for kind, _ in v))
         return Evaluation(candidate=c, error_percent=err, margin=margin, sharpness_mL=sharp, hazard=facts.hazard,
                           violations=tuple(dict.fromkeys(text for _, text in v)), titration=t,

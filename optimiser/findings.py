@@ -123,6 +123,19 @@ WORDING: dict[str, Callable[[Mapping[str, Any]], str]] = {
     "davies_range": lambda v: (f"The ionic strength reaches {v['ionic_strength']:.2f} M, beyond about {v['limit']:g} M where "
                                "the Davies equation holds: activity corrections, and every log K' and pM, are uncertain there "
                                "(use less buffer, masking agent or alkali, or dilute the sample)."),
+    "displacement_complex": lambda v: (f"Displacement: {v['conc_M']:g} M of the {v['metal']}-titrant complex is added to the "
+                                       f"sample; the analyte frees {v['metal']}, which holds the indicator until the end "
+                                       f"point. Equal amounts of metal and titrant are added, so the titre is unchanged "
+                                       f"({v['origin']})."),
+    "step_carry": lambda v: (f"Step {v['step']} starts from the solution step {v['step'] - 1} left at its end point: "
+                             f"{v['titrant_mmol']:.4f} mmol of titrant and {v['volume_mL']:.2f} mL already added."),
+    "second_aliquot": lambda v: (f"A second aliquot of the sample is titrated under other conditions; {v['analyte']} is the "
+                                 f"difference of the two titres."),
+    "demasking": lambda v: (f"{v['agent']} ({v['dose_M']:.3g} M) destroys {v['ratio']:g} mol of {v['ligand']} per mol "
+                            f"({v['note']}); the metals it held are then titrated as the constants say"
+                            + (f", while {_join(v['inert'])} stay(s) in {v['ligand']} complexes taken as inert "
+                               "(a stated assumption)." if v.get("inert") else ".")),
+    "step_problem": lambda v: f"Step {v['step']}: {v['text']}",
     # read-out
     "indicator_unbound": lambda v: (f"{v['indicator']} is hardly bound by the metals at pH {v['pH']:.2f} "
                                     f"({100 * v['bound']:.0f} % bound): no visible colour change is predicted."),

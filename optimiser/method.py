@@ -46,6 +46,10 @@ class Sample:
     alkali_M : Mapping[str, float]
         Counter-ion id (``Na``, ``K``) -> the matrix's own alkali ions in the aliquot [mol/L] (with a monovalent
         anion); they bind the titrant like the recipe's.
+    groups : tuple of tuple of str
+        Further metals or groups determined separately (a scenario's ``analyte`` list beyond its first group); a
+        strategy with several titrations or aliquots (:mod:`optimiser.strategies`) reports each, a single titration
+        treats them as interferents.
     """
 
     volume_mL: float
@@ -57,6 +61,7 @@ class Sample:
     anions: Mapping[str, float] = field(default_factory=dict)
     anion_notes: tuple[str, ...] = ()
     alkali_M: Mapping[str, float] = field(default_factory=dict)
+    groups: tuple[tuple[str, ...], ...] = ()
 
     def __post_init__(self) -> None:
         db = database()
@@ -71,6 +76,14 @@ class Sample:
             if a not in metals:
                 raise InputError(f"analyte {a} has no concentration in the sample (metals given: {', '.join(metals)})")
         object.__setattr__(self, "analyte", analyte)
+        groups = tuple(tuple(db.metal(m) for m in g) for g in self.groups)
+        for g in groups:
+            if not g or any(m not in metals or m in analyte for m in g):
+                raise InputError(f"each further analyte group must name metals of the sample other than the first "
+                                 f"group's ({', '.join(analyte)}); got {', '.join(g) or 'an empty group'}")
+        if len({m for g in groups for m in g}) != sum(len(g) for g in groups):
+            raise InputError("a metal may belong to one analyte group only")
+        object.__setattr__(self, "groups", groups)
         if not 0.0 <= self.acid_M <= 2.0:
             raise InputError(f"the sample's acid must be between 0 and 2 mol/L of H+; got {self.acid_M}")
         known = anion_ligands()
@@ -123,7 +136,13 @@ class Method:
         standard of ``back_metal``).
     back_metal, back_conc_M, excess_ratio
         Back-titration standard, its concentration [mol/L], and the excess of titrant over the metals present
-        (read by the strategies that use them).
+        (read by the strategies that use them; a displacement reads ``back_metal`` as the metal of the complex it
+        adds).
+    stage : Method or None
+        The conditions of a multi-step strategy's other titration (a sequential titration's first step in the same
+        aliquot; a determination by difference's second aliquot); None for a single titration.
+    co_analytes : tuple of str
+        The metals that other titration determines (read by the strategies that use them).
     """
 
     pH: float
@@ -138,6 +157,8 @@ class Method:
     back_metal: str = "Zn"
     back_conc_M: float | None = None
     excess_ratio: float = 1.5
+    stage: "Method | None" = None
+    co_analytes: tuple[str, ...] = ()
     titrant_info: Titrant = field(init=False, compare=False, repr=False)
     buffer_info: Buffer = field(init=False, compare=False, repr=False)
     indicator_info: Indicator = field(init=False, compare=False, repr=False)
@@ -163,6 +184,7 @@ class Method:
         if not self.titrant_conc_M > 0:
             raise InputError(f"titrant concentration must be positive; got {self.titrant_conc_M}")
         check_concentration(self.buffer_total_M, "buffer total")
+        object.__setattr__(self, "co_analytes", tuple(database().metal(m) for m in self.co_analytes))
         strategy(self.mode).check(self)
 
     @property
@@ -170,6 +192,12 @@ class Method:
         """The :class:`optimiser.strategies.Strategy` that runs this method."""
         from .strategies import strategy
         return strategy(self.mode)
+
+    def with_mode(self, mode: str) -> "Method":
+        """The same conditions as a single titration run by the strategy ``mode`` (no stage, no co-analytes)."""
+        from dataclasses import replace
+
+        return replace(self, mode=mode, stage=None, co_analytes=())
 
     @property
     def back_concentration(self) -> float:
@@ -203,6 +231,7 @@ class Method:
         """The highest hazard class of the method's reagents (0-4)."""
         levels = [self.titrant_info.hazard, self.buffer_info.hazard, self.indicator_info.hazard]
         levels += [agent.hazard for agent in self.masking_agents]
+        levels += list(self.strategy.hazards(self))
         return max(levels)
 
 

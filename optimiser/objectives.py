@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from .conditional import Conditions, conditional_constant, feasibility
-from .errors import MissingConstantError
+from .errors import InputError, MissingConstantError
 from .medium import side_reactions
 from .reagents import HAZARD_NAMES, catalogue
 
@@ -64,11 +64,17 @@ def complexity_of(c: Candidate) -> float:
     return len(c.masking) + c.strategy.complexity + catalogue().titrant(c.titrant).complexity
 
 
-def hazard_of(c: Candidate) -> int:
-    """The highest hazard class (0-4) of the candidate's reagents."""
+def hazard_of(c: Candidate, scenario: Scenario | None = None) -> int:
+    """The highest hazard class (0-4) of the candidate's reagents (with the scenario, also those its strategy adds)."""
     cat = catalogue()
     levels = [cat.titrant(c.titrant).hazard, cat.buffer(c.buffer).hazard, cat.indicator(c.indicator).hazard]
     levels += [cat.masking_agent(a).hazard for a, _ in c.masking]
+    if scenario is not None and (c.extra or c.strategy.composite):
+        # the reagents a multi-step strategy adds (a second buffer and indicator, a demasking agent)
+        try:
+            levels.append(c.method(scenario).hazard)
+        except InputError:  # a candidate its strategy refuses is screened out by its own checks
+            pass
     return max(levels)
 
 
@@ -98,6 +104,7 @@ VIOLATIONS = {
     "blocked": ("readable", "the indicator is blocked"),
     "missing_constant": ("readable", "a constant is missing"),
     "inapplicable": ("readable", "the method masks the analyte itself"),
+    "strategy": ("readable", "the strategy's own conditions do not fit (a second step, an added complex)"),
     "not_converged": ("readable", "the equilibrium did not converge"),
     "analyte_solid": ("chemistry", "the analyte precipitates"),
     "slow": ("chemistry", "the analyte reacts too slowly"),
@@ -109,6 +116,7 @@ VIOLATIONS = {
     "too_gradual": ("readable", "the colour change is too gradual"),
     "no_contrast": ("readable", "the colour does not change"),
     "burette": ("volume", "the titre exceeds the burette"),
+    "groups": ("chemistry", "an analyte the scenario names is not determined"),
 }
 CONSTRAINTS = ("readable", "chemistry", "volume")
 
@@ -126,8 +134,9 @@ def prescreen(scenario: Scenario, c: Candidate, buffers_for) -> list[tuple[str, 
         agent = cat.masking_agent(a)
         if c.pH < agent.min_pH:
             out.append(("masking_pH", f"{agent.name} is not used below pH {agent.min_pH:g}"))
-    if hazard_of(c) > scenario.search.max_hazard:
-        out.append(("hazard", f"hazard {HAZARD_NAMES[hazard_of(c)]} is above the scenario's limit"))
+    out += c.strategy.prescreen(c, scenario)
+    if hazard_of(c, scenario) > scenario.search.max_hazard:
+        out.append(("hazard", f"hazard {HAZARD_NAMES[hazard_of(c, scenario)]} is above the scenario's limit"))
     return out
 
 
@@ -147,6 +156,10 @@ def titration_violations(scenario: Scenario, c: Candidate, t: Titration) -> list
         v.append(("slow", "the analyte reacts too slowly for a direct titration"))
     if err is not None and abs(err) > 10 * scenario.targets.max_error_percent:
         v.append(("error_far", f"error {err:+.1f} % is more than ten times the target"))
+    missing = [g for g in (scenario.sample.analyte, *scenario.sample.groups) if g not in t.groups_determined]
+    if missing:
+        v.append(("groups", f"{' and '.join('+'.join(g) for g in missing)} not determined (the scenario names "
+                            f"{len(scenario.sample.groups) + 1} analytes to determine separately)"))
     if t.titre_mL > scenario.burette_mL:
         v.append(("burette", f"titre {t.titre_mL:.1f} mL exceeds the {scenario.burette_mL:g} mL burette"))
     if t.endpoint_mL is not None:
@@ -171,7 +184,7 @@ def acceptance_violations(scenario: Scenario, t: Titration) -> list[tuple[str, s
     for key, part in t.standardised_budget.items():
         if abs(part) > target:
             out.append(("budget_part", f"{budget_label(key)}: {part:+.2f} % on its own (target {target:g} %)"))
-    unbound = -t.budget.get("analyte_unbound", 0.0)
+    unbound = t.analyte_unbound_percent
     if unbound > target:
         out.append(("analyte_unbound", f"{unbound:.2f} % of the analyte is still unbound at the end point "
                                        f"(at most {target:g} %)"))

@@ -155,6 +155,9 @@ def hydroxide_in_solids_mmol(titration: Titration) -> float:
 def result_formula(scenario: Scenario, method: Method) -> str:
     """How the analyst turns the titre into a concentration (and into mg/L where a formula or a single metal allows)."""
     V0, cT = scenario.sample.volume_mL, scenario.titrant_conc_M
+    own = method.strategy.result_formula(scenario, method)
+    if own is not None:
+        return own
     if method.strategy.uses_standard:
         std = method.strategy.variant(method)
         formula = (f"n({scenario.analyte_label}) [mmol] = c(titrant) x V(titrant) - c({std}) x V({std}); "
@@ -176,6 +179,13 @@ def strategy_text(method: Method) -> str:
     """'direct titration', 'back-titration with Zn': the strategy's label, with its standard where it needs one."""
     s = method.strategy
     return f"{s.label} with {s.variant(method)}" if s.uses_standard else s.label
+
+
+def standardisation_step(scenario: Scenario, method: Method, t: Titration) -> str:
+    """How the titrant is standardised, in one paragraph (the written method's standardisation,
+    :func:`optimiser.bench_steps.written_method`), for strategies that write their own steps."""
+    from .bench_steps import written_method
+    return " ".join(written_method(scenario, method, t, "").standardisation)
 
 
 @dataclass(frozen=True)

@@ -33,6 +33,8 @@ BUDGET_LABELS = {
     "indicator_blank": "analyte still held by the indicator",
     "analyte_unbound": "analyte not yet bound to the titrant",
     "standard_unbound": "back-titration standard not held by the titrant",
+    "carried_over": "titrant an earlier step added beyond (or short of) the metals it titrated",
+    "added_complex": "added metal-titrant complex not returned to the titrant at the end point",
 }
 
 
@@ -80,6 +82,9 @@ def turned_crossing(method: Method, x: Array, turned: Array, level: float) -> fl
 
 def budget_label(key: str) -> str:
     """Words for an error-budget key (``cotitration:<metal>`` or one of :data:`BUDGET_LABELS`)."""
+    if key.startswith("step "):  # a multi-step strategy's result: "step 2: <key>"
+        step, rest = key.split(": ", 1)
+        return f"{step}: {budget_label(rest)}"
     if key.startswith("cotitration:"):
         return f"{key.split(':', 1)[1]} co-titrated"
     return BUDGET_LABELS[key]

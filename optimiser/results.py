@@ -44,11 +44,13 @@ def _method_json(result: SearchResult, e: Evaluation) -> dict[str, Any]:
     t = e.titration
     return {
         "pH": _r(c.pH, 3), "buffer": c.buffer, "titrant": c.titrant, "titrant_conc_M": result.scenario.titrant_conc_M,
-        "masking": [{"agent": a, "conc_M": _r(d, 6)} for a, d in c.masking], "indicator": c.indicator,
-        **strategy(c.mode).json_fields(c),  # "mode", "back_metal"
+        "masking": [{"agent": a, "conc_M": _r(d, 6)} for a, d in (t.method.masking if t is not None else c.masking)],
+        "indicator": c.indicator,
+        **strategy(c.mode).json_fields(t.method if t is not None else c),  # "mode", "back_metal", the strategy's own
         "predicted_error_percent": _r(e.error_percent),
         "standardised_error_percent": _r(e.standardised_error_percent),
         "error_budget": {k: _r(v, 4) for k, v in t.budget.items()} if t is not None else {},
+        "steps": steps_json(t) if t is not None else [],
         "error_budget_standardised": {k: _r(v, 4) for k, v in t.standardised_budget.items()} if t is not None else {},
         "selectivity_margin_log": _r(e.margin, 3),
         "endpoint_sharpness_mL": _r(e.sharpness_mL), "hazard": HAZARD_NAMES[e.hazard], "strategy": strategy_of(e),
@@ -133,7 +135,20 @@ def titration_json(t: Titration, every: int = 1) -> dict[str, Any]:
                   "pM": {m: [_r(v) for v in arr[::every]] for m, arr in t.pM.items()},
                   "indicator_turned": [_r(v) for v in t.turned[::every]],
                   "ionic_strength_M": [_r(v, 6) for v in t.ionic_strength_M[::every]]},
+        "strategy": t.method.strategy.json_fields(t.method),
+        "steps": steps_json(t),
     }
+
+
+def steps_json(t: Titration) -> list[dict[str, Any]]:
+    """Each end point of the titration with its own step, volume, error, budget and colour change (one for a single
+    titration; one per step and per derived result for a multi-step strategy)."""
+    return [{"label": ep.label, "step": ep.step, "derived": ep.derived, "start_mL": _r(ep.start_mL),
+             "volume_mL": _r(ep.volume_mL), "error_percent": _r(ep.error_percent),
+             "standardised_error_percent": _r(ep.standardised_percent), "sharpness_mL": _r(ep.sharpness_mL),
+             "colour_change": list(ep.colour_change), "error_budget": {k: _r(v) for k, v in ep.budget.items()},
+             "error_budget_standardised": {k: _r(v) for k, v in ep.standardised_parts.items()}}
+            for ep in t.endpoints]
 
 
 def writable_folder(folder: Path, option: str = "--out") -> Path:

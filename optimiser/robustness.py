@@ -45,14 +45,15 @@ def robustness(scenario: Scenario, e: Evaluation, half_width: float = 1.0, step:
     pH_window = window(grid, errs, c.pH, target)
     doses = {}
     dose_scans = {}
-    for a, d in c.masking:
+    m0 = c.method(scenario)  # its masking as the strategy completes it (demasking adds the agent it undoes)
+    for a, d in m0.masking:
         lo, hi = (math.log10(x) for x in catalogue().masking_agent(a).dose_range_M)
         lg = np.log10(d) + np.arange(-1.0, 1.0001, 0.1)
         lg = np.union1d(lg[(lg >= lo - 1e-9) & (lg <= hi + 1e-9)], [np.log10(d)])
         ms = []
         for x in lg:
-            mask = tuple((b, 10 ** x if b == a else dd) for b, dd in c.masking)
-            ms.append(replace(c.method(scenario), masking=mask))
+            mask = tuple((b, 10 ** x if b == a else dd) for b, dd in m0.masking)
+            ms.append(replace(m0, masking=mask))
         de = _errors(scenario, ms, e_std)
         dose_scans[a] = (10 ** lg, de)
         w = window(lg, de, np.log10(d), target)

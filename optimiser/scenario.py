@@ -140,6 +140,7 @@ def _dotted(key: tuple) -> str:
     return ".".join(str(k) for k in key if k != "<key>")
 
 
+LIST_OF_GROUPS = ("analyte",)  # sections that may also be a list of their mapping (several analytes determined apart)
 _KINDS = {list: "a list", dict: "a mapping", str: "text", int: "a whole number"}
 
 
@@ -149,7 +150,16 @@ def _check_keys(doc: Mapping, schema: Mapping, marks: _Marks, key: tuple) -> Non
             where = "the top level" if not key else _dotted(key)
             raise marks.error(f"unknown key {quoted(k)} in {where}; allowed: {', '.join(schema)}", key + (k, "<key>"))
         sub, v = schema[k], doc[k]
-        if isinstance(sub, dict):
+        if isinstance(sub, dict) and k in LIST_OF_GROUPS and isinstance(v, list):
+            if not v:
+                raise marks.error(f"{_dotted(key + (k,))} is empty; allowed: a mapping, or a list of mappings with keys "
+                                  f"{', '.join(sub)}", key + (k,))
+            for i, item in enumerate(v):
+                if not isinstance(item, Mapping):
+                    raise marks.error(f"{_dotted(key + (k,))} entries must be mappings with keys {', '.join(sub)}",
+                                      key + (k, i))
+                _check_keys(item, sub, marks, key + (k, i))
+        elif isinstance(sub, dict):
             if not isinstance(v, Mapping):
                 raise marks.error(f"{_dotted(key + (k,))} must be a mapping with keys {', '.join(sub)}", key + (k,))
             _check_keys(v, sub, marks, key + (k,))
@@ -235,7 +245,7 @@ class _Reader:
         no control or invisible character (a line break and a tab allowed where ``one_line`` is false)."""
         d: Any = self.doc
         for k in key[:-1]:
-            d = d.get(k) or {}
+            d = d[k] if isinstance(d, list) else (d.get(k) or {})
         v = d.get(key[-1])
         if v is None and not required:
             return ""
@@ -385,20 +395,27 @@ def _add_metals(r: _Reader, block: Mapping, key: tuple, metals: dict[str, float]
     return added
 
 
-def _metals(r: _Reader) -> tuple[dict[str, float], list[str], str, str | None]:
-    """Every metal's concentration [M], the analyte metals, the analyte's label and ``report_as``."""
-    a = r.doc["analyte"]
-    if "metals" not in a or not a["metals"]:
-        raise r.error("analyte.metals is required: the metal or metals determined, with concentrations", ("analyte",))
+def _metals(r: _Reader) -> tuple[dict[str, float], list[str], str, str | None, tuple[tuple[str, ...], ...]]:
+    """Every metal's concentration [M], the analyte metals, the analyte's label and ``report_as``, and the further
+    groups determined separately (``analyte`` given as a list: the first group is the analyte, the others groups)."""
+    entries = r.doc["analyte"]
+    keys = [("analyte", i) for i in range(len(entries))] if isinstance(entries, list) else [("analyte",)]
     metals: dict[str, float] = {}
-    analyte = _add_metals(r, a["metals"], ("analyte", "metals"), metals)
+    groups: list[list[str]] = []
+    label, report_as = "", None
+    for n, key in enumerate(keys):
+        a = entries[key[1]] if len(key) > 1 else entries
+        if "metals" not in a or not a["metals"]:
+            raise r.error(f"{_dotted(key)}.metals is required: the metal or metals determined, with concentrations", key)
+        groups.append(_add_metals(r, a["metals"], key + ("metals",), metals))
+        if n == 0:
+            label = r.text(key + ("name",), TEXT_LIMITS["analyte_name"])
+            if a.get("report_as") is not None:
+                report_as = r.text(key + ("report_as",), 50)
+                r.value(key + ("report_as",), formula_mass)
     _add_metals(r, r.doc.get("interferents") or {}, ("interferents",), metals)
-    label = r.text(("analyte", "name"), TEXT_LIMITS["analyte_name"])
-    report_as = None
-    if a.get("report_as") is not None:
-        report_as = r.text(("analyte", "report_as"), 50)
-        r.value(("analyte", "report_as"), formula_mass)
-    return metals, analyte, label or " + ".join(analyte), report_as
+    analyte = groups[0]
+    return metals, analyte, label or " + ".join(analyte), report_as, tuple(tuple(g) for g in groups[1:])
 
 
 def _titrant(r: _Reader) -> tuple[float, float]:
@@ -545,7 +562,7 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
     description = r.text(("description",), TEXT_LIMITS["description"], one_line=False)
     V0, I, T = _conditions(r)
     matrix = r.text(("sample", "matrix"), TEXT_LIMITS["matrix"])
-    metals, analyte, label, report_as = _metals(r)
+    metals, analyte, label, report_as, groups = _metals(r)
     cT, burette = _titrant(r)
     search = _search(r)
     targets = _targets(r)
@@ -553,7 +570,7 @@ def parse(text: str, path: str = "<scenario>") -> Scenario:
     methods = listed_methods.read(r, cT)
     try:
         sample = Sample(volume_mL=V0, metals=metals, analyte=tuple(analyte), ionic_strength_M=I, temperature_C=T,
-                        acid_M=_acid(r), anions=anions, anion_notes=anion_notes, alkali_M=_alkali(r))
+                        acid_M=_acid(r), anions=anions, anion_notes=anion_notes, alkali_M=_alkali(r), groups=groups)
     except InputError as exc:
         raise r.error(str(exc), ("analyte",)) from None
     return Scenario(name=name, description=description, sample=sample, analyte_label=label, report_as=report_as,

@@ -31,6 +31,7 @@ from .objectives import CONSTRAINTS, conditional_curves
 from .reagents import catalogue
 from .robustness import robustness
 from .scenario import Scenario
+from .strategies import strategy
 from .titration import Titration, simulate
 
 NONE = "none"
@@ -89,13 +90,27 @@ class MethodProblem(Problem):
         cat = catalogue()
         v = {"pH": Real(bounds=sp.pH_range), "buffer_pick": Choice(options=[0, 1]),
              "log_buffer": Real(bounds=BUFFER_LOG_RANGE), "titrant": Choice(options=list(sp.titrants)),
-             "indicator": Choice(options=list(sp.indicators)), "mode": Choice(options=list(sp.modes)),
+             "indicator": Choice(options=list(sp.indicators)), "mode": Choice(options=list(self.modes(scenario))),
              "back_metal": Choice(options=list(sp.back_metals))}
+        self.genes = {}  # a strategy's own variables, named "<mode>.<gene>"
+        for mode in self.modes(scenario):
+            for name, spec in strategy(mode).genes(scenario.sample, sp).items():
+                key = f"{mode}.{name}"
+                self.genes[key] = (mode, name)
+                v[key] = Real(bounds=spec[1:3]) if spec[0] == "real" else Choice(options=list(spec[1]))
         for i in range(1, sp.max_masking_agents + 1):
             v[f"mask{i}"] = Choice(options=list(self.masking_options))
             v[f"dose{i}"] = Real(bounds=(0.0, 1.0))  # position within the agent's own log dose range
         self._dose_range = {a: tuple(math.log10(x) for x in cat.masking_agent(a).dose_range_M) for a in sp.masking}
         super().__init__(vars=v, n_obj=len(scenario.objectives), n_ieq_constr=len(CONSTRAINTS))
+
+    @staticmethod
+    def modes(scenario: Scenario) -> tuple[str, ...]:
+        """The scenario's strategies that apply to its sample (each strategy says where it does)."""
+        sp = scenario.search
+        listed = "modes" in ((scenario.as_read or {}).get("search") or {})
+        return tuple(m for m in sp.modes if strategy(m).applies(scenario.sample, sp)
+                     or (listed and strategy(m).applies_when_asked(scenario.sample, sp))) or sp.modes[:1]
 
     def decode(self, x: dict) -> Candidate:
         sp = self.scenario.search
@@ -108,14 +123,25 @@ class MethodProblem(Problem):
             if a != NONE and a not in [m for m, _ in masks]:
                 lo, hi = self._dose_range[a]
                 masks.append((a, 10 ** (lo + float(x[f"dose{i}"]) * (hi - lo))))
+        mode = str(x["mode"])
+        extra = tuple(sorted((name, _plain(x[key])) for key, (m, name) in self.genes.items() if m == mode))
         return Candidate(pH=round(pH, 4), buffer=buf, log_buffer=round(float(x["log_buffer"]), 3), titrant=str(x["titrant"]),
-                         masking=tuple(sorted(masks)), indicator=str(x["indicator"]), mode=str(x["mode"]),
-                         back_metal=str(x["back_metal"]))
+                         masking=tuple(sorted(masks)), indicator=str(x["indicator"]), mode=mode,
+                         back_metal=str(x["back_metal"]), extra=extra)
 
     def _evaluate(self, X, out, *args, **kwargs):
         evals = self.evaluator.evaluate([self.decode(x) for x in X])
         out["F"] = np.array([e.F for e in evals], dtype=float)
         out["G"] = np.array([e.G for e in evals], dtype=float)
+
+
+def _plain(v):
+    """A gene's value as a plain Python value (rounded where real, so that the cache sees repeats)."""
+    if isinstance(v, (float, np.floating)):
+        return round(float(v), 3)
+    if isinstance(v, np.integer):
+        return int(v)
+    return v.item() if hasattr(v, "item") else v
 
 
 def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 40, n_gen: int = 25,

@@ -31,7 +31,7 @@ from .medium import background_M, beyond_davies, medium
 from .method import Method, Sample, as_titrated
 from .pretreatment import Prepared, prepare
 from .readout import DROP_mL, GRADUAL_DROPS
-from .strategies.base import Plan
+from .strategies.base import Carry, Plan
 
 Array = NDArray[np.float64]
 TITRANT_PROTONS = 2  # titrant added as the disodium salt Na2H2Y (common practice)
@@ -41,7 +41,7 @@ TITRANT_PROTONS = 2  # titrant added as the disodium salt Na2H2Y (common practic
 CURVE_I_TOL = 1e-5
 
 __all__ = ["Sample", "Method", "Prepared", "prepare", "EndPoint", "Titration", "simulate", "simulate_many", "DROP_mL",
-           "GRADUAL_DROPS"]
+           "GRADUAL_DROPS", "Carry"]
 
 
 @dataclass(frozen=True)
@@ -65,6 +65,12 @@ class EndPoint:
     budget : dict
         The error split by cause [%] (keys worded by :func:`optimiser.readout.budget_label`); the parts add up to
         ``error_percent``. Empty where there is no end point.
+    step : str
+        The step it belongs to, in words ("" for a single titration): a multi-step strategy's conditions.
+    start_mL : float
+        Where the step's curve starts on the titration's combined volume axis [mL] (0 for a single titration).
+    derived : bool
+        True for a result computed from other end points (a determination by difference), not read on a curve.
     """
 
     label: str
@@ -74,15 +80,22 @@ class EndPoint:
     colour_change: tuple[str, str]
     pM: dict[str, float]
     budget: dict[str, float] = field(default_factory=dict)
+    step: str = ""
+    start_mL: float = 0.0
+    derived: bool = False
+    standardised_percent: float | None = None  # a multi-step strategy's error after standardisation [%]
+    standardised_parts: dict[str, float] = field(default_factory=dict)  # ... and its budget [%]
 
 
 @dataclass(frozen=True)
 class Titration:
     """A simulated titration and what an analyst reads from it.
 
-    Arrays run over ``volume_mL`` (the strategy's volume axis: titrant, or back-titrant). ``endpoints`` holds one
-    :class:`EndPoint` per titre (one for a direct or a back-titration); ``endpoint_mL``, ``error_percent``,
-    ``sharpness_mL``, ``colour_change`` and ``pM_ep`` read the first.
+    Arrays run over ``volume_mL`` (the strategy's volume axis: titrant, or back-titrant; a multi-step strategy's
+    steps one after the other). ``endpoints`` holds one :class:`EndPoint` per titre (one for a direct or a
+    back-titration; one per step, and per derived result, for a multi-step strategy); ``endpoint_mL``,
+    ``error_percent``, ``sharpness_mL``, ``colour_change`` and ``pM_ep`` read the governing one
+    (``endpoints[governing]``: the first, or the multi-step strategy's worst result).
     """
 
     sample: Sample
@@ -116,31 +129,53 @@ class Titration:
     mass_balance_error: float = 0.0  # largest relative mass-balance error over the curve, recomputed
     ionic_strength_M: Array = field(default_factory=lambda: np.zeros(0), repr=False)  # computed at each point [mol/L]
     standardisation: EndPoint | None = None  # the same method on the primary standard, where simulated
+    governing: int = 0  # the end point the single-value properties read
+    steps: tuple["Titration", ...] = field(default=(), repr=False)  # a multi-step strategy's titrations, in order
+    titre_total_mL: float | None = None  # a multi-step strategy's burette volume, where it is not one end point's
+    determined: tuple[tuple[str, ...], ...] = ()  # the analyte groups reported (a multi-step strategy's; else the analyte)
+
+    @property
+    def analyte_unbound_percent(self) -> float:
+        """The analyte not yet bound to the titrant at the end point [% of it]: the governing end point's, or the
+        largest of the steps' end points where the result is derived from several."""
+        if self.result.derived:
+            return max((-ep.budget.get("analyte_unbound", 0.0) for ep in self.endpoints if not ep.derived), default=0.0)
+        return -self.budget.get("analyte_unbound", 0.0)
+
+    @property
+    def groups_determined(self) -> tuple[tuple[str, ...], ...]:
+        """The analyte groups this titration reports a result for (a single titration: the sample's analyte)."""
+        return self.determined or (self.sample.analyte,)
+
+    @property
+    def result(self) -> EndPoint:
+        """The governing end point (the first; a multi-step strategy's worst result)."""
+        return self.endpoints[self.governing]
 
     @property
     def endpoint_mL(self) -> float | None:
-        return self.endpoints[0].volume_mL
+        return self.result.volume_mL
 
     @property
     def error_percent(self) -> float | None:
-        return self.endpoints[0].error_percent
+        return self.result.error_percent
 
     @property
     def sharpness_mL(self) -> float | None:
-        return self.endpoints[0].sharpness_mL
+        return self.result.sharpness_mL
 
     @property
     def colour_change(self) -> tuple[str, str]:
-        return self.endpoints[0].colour_change
+        return self.result.colour_change
 
     @property
     def pM_ep(self) -> dict[str, float]:
-        return self.endpoints[0].pM
+        return self.result.pM
 
     @property
     def budget(self) -> dict[str, float]:
-        """The first end point's error split by cause [%]."""
-        return self.endpoints[0].budget
+        """The governing end point's error split by cause [%]."""
+        return self.result.budget
 
     @property
     def standardised_error_percent(self) -> float | None:
@@ -148,6 +183,8 @@ class Titration:
         (1 + e) / (1 + e_std) - 1. The raw error where no standardisation was simulated."""
         e = self.error_percent
         std = self.standardisation
+        if self.result.standardised_percent is not None:
+            return self.result.standardised_percent
         if e is None or std is None or std.error_percent is None:
             return e
         return standardised(e, std.error_percent)
@@ -157,6 +194,8 @@ class Titration:
         """The error budget after standardisation [%]: each part less the standard's own, over (1 + e_std); the
         parts add up to :attr:`standardised_error_percent`. The raw budget where no standardisation was simulated."""
         std = self.standardisation
+        if self.result.standardised_parts:
+            return dict(self.result.standardised_parts)
         if std is None or std.error_percent is None or not self.budget:
             return dict(self.budget)
         scale = 1 + std.error_percent / 100
@@ -191,6 +230,8 @@ class Titration:
     @property
     def titre_mL(self) -> float:
         """The largest volume the burette must deliver [mL]."""
+        if self.titre_total_mL is not None:
+            return self.titre_total_mL
         return self.method.strategy.titre_mL(self.endpoint_mL, self.excess_mL)
 
     @property
@@ -214,49 +255,57 @@ def _check_constants(metals: Sequence[str], titrant: str) -> None:
                                        f"with {m} present (the model never takes a missing constant as 'no binding')")
 
 
-def plan(sample: Sample, method: Method, n_points: int) -> Plan:
-    """Set up one titration: pretreatment, chemical system, and the totals along the curve (by its strategy)."""
+def plan(sample: Sample, method: Method, n_points: int, carry: Carry | None = None) -> Plan:
+    """Set up one titration: pretreatment, chemical system, and the totals along the curve (by its strategy).
+
+    ``carry`` is what earlier steps of a multi-step strategy left in the solution (their titrant, a metal or ligand
+    added or consumed, their volume); the method's own reagents are concentrations at this step's start."""
     db = database()
     strategy = method.strategy
     warmed_from = sample.temperature_C
     sample = as_titrated(sample, method)
     prep = prepare(sample, method)
     added = strategy.added_metals(method)
+    carried = dict(carry.amounts_mmol) if carry is not None else {}
+    added = tuple(added) + tuple(m for m in carried if m in db.metals and m not in added)
     metals = list(prep.metals) + [m for m in added if m not in prep.metals]
     _check_constants([m for m in metals if prep.metals.get(m, 0.0) > 0 or m in added], method.titrant)
     if not any(prep.metals.get(a, 0.0) > 0 for a in sample.analyte):
         raise InapplicableMethodError(f"the method leaves no {', '.join(sample.analyte)} to titrate: "
                                       f"{', '.join(a for a, _ in method.masking) or 'its reagents'} mask or reduce the analyte itself")
-    med = medium(sample, method)
+    med = medium(sample, method)  # the step's own recipe (a carried step's earlier titrant brings no alkali ions here)
     ions = med.present()
+    ligands = method.ligands + tuple(k for k in carried if k not in db.metals and k not in method.ligands)
     # the sample's own anions join the method's ligands as components (after them, so a method's system is unchanged)
-    system = build_system(tuple(metals) + ions, tuple(dict.fromkeys([*method.ligands, *sample.anions])))
+    system = build_system(tuple(metals) + ions, tuple(dict.fromkeys([*ligands, *sample.anions])))
     comps = system.components
-    V0, cT = sample.volume_mL, method.titrant_conc_M
+    V0, cT = sample.volume_mL + (carry.volume_mL if carry is not None else 0.0), method.titrant_conc_M
     binding = [m for m in prep.metals if db.metals[m].get("binds_titrant", True) is not False]
     base = np.zeros(len(comps))
     for m, c in prep.metals.items():
-        base[comps.index(m)] = c
+        base[comps.index(m)] = c * sample.volume_mL / V0
     for lig, c in prep.ligand_totals.items():
         base[comps.index(lig)] += c
     base[comps.index(method.indicator)] += method.indicator_dose_M
     for anion, c in sample.anions.items():
-        base[comps.index(anion)] += c
+        base[comps.index(anion)] += c * sample.volume_mL / V0
+    for k, n in carried.items():
+        base[comps.index(k)] = max(base[comps.index(k)] + n / V0, 0.0)
     added = np.zeros(len(comps))  # what one mole of titrant brings: the titrant and its counter-ions
     added[comps.index(method.titrant)] = 1.0
     for ion in ions:
-        base[comps.index(ion)] += med.cations.get(ion, 0.0)
+        base[comps.index(ion)] += med.cations.get(ion, 0.0) * sample.volume_mL / V0
         added[comps.index(ion)] += med.titrant_cations.get(ion, 0.0)
 
     def totals_before(V: Array) -> Array:
         return base[None, :] * (V0 / (V0 + V))[:, None] + added[None, :] * (cT * V / (V0 + V))[:, None]
 
     p = Plan(sample=sample, method=method, prep=prep, system=system, metals=metals, totals_before=totals_before,
-             V_eq=sample.n_analyte_mmol / cT, V_all=sum(prep.metals[m] for m in binding) * V0 / cT, n_points=n_points,
-             slow=[m for m in sample.analyte if db.metals[m].get("slow_with_titrant")],
+             V_eq=sample.n_analyte_mmol / cT, V_all=sum(prep.metals[m] for m in binding) * sample.volume_mL / cT,
+             n_points=n_points, slow=[m for m in sample.analyte if db.metals[m].get("slow_with_titrant")],
              findings=list(prep.findings) + [fd.assumption("anion_input", note=n)
                                              for n in (*sample.anion_notes, *anion_assumptions(sample.anions))],
-             medium=med)
+             medium=med, carry=carry)
     if sample.temperature_C != warmed_from:
         ind = method.indicator_info
         p.findings.append(fd.assumption("working_temperature", source=ind.working_temperature_source or "common practice",
@@ -355,7 +404,8 @@ def standard_sample(sample: Sample) -> Sample:
 
 
 def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161, pH_drift: bool = False,
-                  errors: list | None = None, standardise: bool = False) -> list[Titration | None]:
+                  errors: list | None = None, standardise: bool = False,
+                  carry: Carry | Sequence[Carry | None] | None = None) -> list[Titration | None]:
     """Simulate many methods on one sample; candidates that share a chemical system are solved together.
 
     Parameters
@@ -366,23 +416,65 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
     standardise : bool
         Also simulate each method on the primary standard (:func:`standard_sample`), so that each titration carries
         the error left after the titrant is standardised (``Titration.standardisation``).
+    carry : Carry or list of Carry, optional
+        What earlier steps left in the solution (a multi-step strategy's later step; one for all the methods, or one
+        per method; not applied to the standard).
+
+    Methods whose strategy runs several titrations (``strategy.composite``) are simulated by their strategy, which
+    calls this function for each step (the same step of all its methods in one call).
     """
+    carries = list(carry) if isinstance(carry, (list, tuple)) else [carry] * len(methods)
     plans: list[Plan | None] = []
+    composite: dict[int, Titration | None] = {}
+    by_strategy: dict[str, list[int]] = {}
+    for k, m in enumerate(methods):
+        if m.strategy.composite:
+            by_strategy.setdefault(m.strategy.id, []).append(k)
+    for ks in by_strategy.values():
+        try:
+            ts = methods[ks[0]].strategy.simulate_many(sample, [methods[k] for k in ks], n_points, pH_drift, standardise)
+        except (MissingConstantError, InapplicableMethodError):
+            if errors is None:
+                raise
+            ts = []
+            for k in ks:  # one by one, so that only the offending method is lost
+                try:
+                    ts.append(methods[k].strategy.simulate(sample, methods[k], n_points, pH_drift, standardise))
+                except (MissingConstantError, InapplicableMethodError) as exc:
+                    errors.append((k, exc))
+                    ts.append(None)
+        composite.update(zip(ks, ts))
     for k, m in enumerate(methods):
         try:
-            plans.append(plan(sample, m, n_points))
+            if m.strategy.composite:
+                plans.append(None)
+            else:
+                plans.append(plan(sample, m, n_points, carries[k]))
         except (MissingConstantError, InapplicableMethodError) as exc:
             if errors is None:
                 raise
             errors.append((k, exc))
+            composite[k] = None
             plans.append(None)
     live = [p for p in plans if p is not None]
-    std = [plan(standard_sample(sample), p.method, n_points) for p in live] if standardise else []
-    done = _run(live + std, pH_drift, n_drift=len(live))
+    std = [plan(standard_sample(sample), p.method, n_points, _reagents_only(p.carry)) for p in live] if standardise else []
+    done = _run(live + std, pH_drift, n_drift=len(live)) if live else []
     if std:
         done = [replace(t, standardisation=s.endpoints[0]) for t, s in zip(done[:len(live)], done[len(live):])]
     results = iter(done)
-    return [None if p is None else next(results) for p in plans]
+    return [composite[k] if k in composite else next(results) for k in range(len(plans))]
+
+
+def _reagents_only(carry: Carry | None) -> Carry | None:
+    """What a step's standard shares with the step: a ligand a reagent destroyed (not the titrant or metals of
+    earlier steps, which the standard never saw)."""
+    if carry is None:
+        return None
+    from .constants import database
+
+    metals = database().metals
+    kept = {k: v for k, v in carry.amounts_mmol.items() if v < 0 and k not in metals}
+    return Carry(0.0, kept) if kept else None
 
 
 def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
@@ -509,7 +601,7 @@ def _indicator_findings(plan: Plan, blocked: list[str], blank: float | None, sha
         out.append(fd.warning("indicator_pH", indicator=indicator.name, low=indicator.usable_pH[0],
                               high=indicator.usable_pH[1], pH=method.pH))
     if (indicator.needs_Mg_for_Ca and "Ca" in sample.analyte and sample.metals.get("Mg", 0.0) <= 0
-            and method.strategy.reads_release):
+            and "Mg" not in plan.metals and method.strategy.reads_release):
         out.append(fd.warning("needs_magnesium", indicator=indicator.name))
     if sharp is not None and sharp > GRADUAL_DROPS * DROP_mL:
         out.append(fd.warning("too_gradual", sharpness_mL=sharp, drops=sharp / DROP_mL))
@@ -561,7 +653,7 @@ def _pH_drifts(live: Sequence[Plan], coarse: Sequence[Equilibrium], V_eps: Seque
             V = np.array([0.0, V_eps[k]])
             T = p.totals(V)
             T_H0 = float(coarse[k].c[0] @ system.nu[:, iH])
-            V0 = p.sample.volume_mL
+            V0 = p.V_start
             T[:, iH] = T_H0 * V0 / (V0 + V) + TITRANT_PROTONS * p.method.titrant_conc_M * V / (V0 + V)
             blocks.append(T)
         bg = np.concatenate([background_M(live[k], T) for k, T in zip(ks, blocks, strict=True)])

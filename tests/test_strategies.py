@@ -18,10 +18,10 @@ HARDNESS = Sample(50, {"Ca": 0.0015, "Mg": 0.0005}, ("Ca", "Mg"))
 def test_registry_names_every_strategy_and_refuses_others():
     """Every registered strategy is found by its id; an unknown id names the allowed ones."""
     assert strategy_ids() == tuple(REGISTRY)
-    assert {"direct", "back"} <= set(strategy_ids())
+    assert {"direct", "back", "displacement", "sequential", "difference", "demasking"} <= set(strategy_ids())
     for sid in strategy_ids():
         assert strategy(sid).id == sid
-    with pytest.raises(UnknownNameError, match="known modes: back, direct"):
+    with pytest.raises(UnknownNameError, match="known modes: back, demasking, difference, direct, displacement, sequential"):
         strategy("sideways")
 
 

@@ -64,6 +64,8 @@ def conditional_figure(analysis: Analysis) -> str:
     for i, m in enumerate(analysis.metals):
         st = _style(i)
         role = "analyte" if m in result.scenario.sample.analyte else "interferent"
+        if not np.any(np.isfinite(cc[m])):  # no constant with this titrant: no curve (the table says so)
+            continue
         ax.plot(pH, cc[m], label=f"{m} ({role}), with the method's ligands", **st)
         st2 = dict(st, linestyle=":", marker=None, alpha=0.6)
         ax.plot(pH, cc[m + " (no ligands)"], label=f"{m}, no buffer or masking ligand", **st2)
@@ -111,13 +113,25 @@ def titration_figure(analysis: Analysis) -> str:
     order = [m for m in analysis.metals if m in t.pM] + [m for m in t.pM if m not in analysis.metals]
     order = [m for m in order if np.isfinite(t.pM[m]).any()]  # a slow analyte held inert has no free ion on the curve
     for i, m in enumerate(order):
-        ax.plot(t.volume_mL, t.pM[m], label=f"p{m}", **_style(i))
+        if np.any(np.isfinite(t.pM[m])):  # a metal no step's solution holds has no curve
+            ax.plot(t.volume_mL, t.pM[m], label=f"p{m}", **_style(i))
     lo_hi = None
-    if t.endpoint_mL is not None and t.sharpness_mL is not None:
+    if t.endpoint_mL is not None and t.sharpness_mL is not None and len(t.endpoints) == 1:
         lo_hi = (t.endpoint_mL - t.sharpness_mL / 2, t.endpoint_mL + t.sharpness_mL / 2)
         ax.axvspan(*lo_hi, color="0.85", label="indicator turning (10-90 %)")
-    ax.axvline(t.equivalence_mL, color="black", lw=1, linestyle="--", label=f"equivalence {t.equivalence_mL:.2f} mL")
-    if t.endpoint_mL is not None:
+    read = [ep for ep in t.endpoints if not ep.derived]
+    if len(read) > 1:  # a multi-step strategy: each step's end point where its curve starts, and where the steps meet
+        lo_hi = None
+        for k, ep in enumerate(read):
+            if k:
+                ax.axvline(ep.start_mL, color="0.5", lw=0.8, linestyle=":")
+            if ep.volume_mL is not None:
+                x = ep.start_mL + ep.volume_mL
+                ax.axvline(x, color="black", lw=1.5, linestyle=["-", "-.", (0, (5, 1))][k % 3],
+                           label=f"end point {k + 1} ({ep.label}) {ep.volume_mL:.2f} mL")
+    else:
+        ax.axvline(t.equivalence_mL, color="black", lw=1, linestyle="--", label=f"equivalence {t.equivalence_mL:.2f} mL")
+    if t.endpoint_mL is not None and len(read) <= 1:
         ax.axvline(t.endpoint_mL, color="black", lw=1.5, label=f"end point {t.endpoint_mL:.2f} mL")
     ax2 = ax.twinx()
     ax2.plot(t.volume_mL, np.clip(t.turned, 0, 1) * 100, color="0.4", lw=1, linestyle=(0, (2, 2)), label="indicator turned")
@@ -202,7 +216,8 @@ def robustness_figure(analysis: Analysis) -> str:
         if agent in result.robust_dose:
             lo, hi = result.robust_dose[agent]
             ax.axvspan(lo * 1000, hi * 1000, color="0.75", alpha=0.6)
-        d0 = dict(result.recommended.candidate.masking)[agent]
+        t = result.recommended_titration  # its masking as the strategy completes it (demasking adds its agent)
+        d0 = dict(t.method.masking if t is not None else result.recommended.candidate.masking)[agent]
         ax.axvline(d0 * 1000, color="black", lw=1, linestyle="--")
         # 1-2-5 ticks: a dose window of a factor of 20 spans a single decade tick otherwise
         ax.xaxis.set_major_locator(matplotlib.ticker.LogLocator(base=10, subs=(1.0, 2.0, 5.0)))

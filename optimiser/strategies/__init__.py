@@ -13,8 +13,14 @@ from ..errors import UnknownNameError
 from .base import Strategy
 from .back import BackTitration
 from .direct import DirectTitration
+from .demasking import DemaskingTitration
+from .difference import DifferenceDetermination
+from .displacement import DisplacementTitration
+from .sequential import SequentialTitration
 
-REGISTRY: dict[str, Strategy] = {s.id: s for s in (DirectTitration(), BackTitration())}
+REGISTRY: dict[str, Strategy] = {s.id: s for s in (DirectTitration(), BackTitration(), DisplacementTitration(),
+                                                   SequentialTitration(), DifferenceDetermination(),
+                                                   DemaskingTitration())}
 
 
 def strategy(mode: str) -> Strategy:

@@ -19,6 +19,27 @@ if TYPE_CHECKING:  # pragma: no cover
 Array = NDArray[np.float64]
 
 
+@dataclass(frozen=True)
+class Carry:
+    """What earlier steps leave in the solution a titration starts from (a multi-step strategy's carry-over).
+
+    Attributes
+    ----------
+    volume_mL : float
+        Volume added to the aliquot before this step (titrant of earlier steps) [mL].
+    amounts_mmol : dict
+        Component -> amount added (or, negative, consumed) before this step [mmol]: the titrant of earlier steps, a
+        metal-titrant complex, a ligand a reagent destroys. The step's own reagents (buffer, masking agents,
+        indicator) are concentrations at the step's start and are not carried.
+    titrated : tuple of str
+        Metals an earlier step titrated: the titrant they hold is the earlier step's, not this one's.
+    """
+
+    volume_mL: float = 0.0
+    amounts_mmol: dict[str, float] = field(default_factory=dict)
+    titrated: tuple[str, ...] = ()
+
+
 @dataclass
 class Plan:
     """One titration's set-up between the batched solves.
@@ -75,6 +96,12 @@ class Plan:
     inert_mM: dict[str, float] = field(default_factory=dict)
     V: Array | None = None
     medium: Medium | None = None
+    carry: Carry | None = None
+
+    @property
+    def V_start(self) -> float:
+        """The solution's volume when this titration starts (the aliquot and what earlier steps added) [mL]."""
+        return self.sample.volume_mL + (self.carry.volume_mL if self.carry is not None else 0.0)
 
 
 def indicator_bound(method: Method, eq: Equilibrium, metals: list[str] | tuple[str, ...]) -> Array:
@@ -108,6 +135,12 @@ class Strategy:
     family : str or None
         The kind of selectivity the strategy stands for in the report's alternatives ("back-titration"); None where
         the reagents and pH decide it (a direct titration: masking, another titrant, pH control).
+    composite : bool
+        True where the strategy runs several titrations (steps in one aliquot, or aliquots) and simulates them
+        itself (:meth:`simulate`); each step is then an ordinary single titration on the full equilibrium.
+    time_cost : float
+        Bench time relative to one direct titration (our own scale, common practice: a second titration or aliquot
+        about doubles it); the search may weigh it beside :attr:`complexity`.
     """
 
     id: str = ""
@@ -118,6 +151,8 @@ class Strategy:
     uses_standard: bool = False
     volume_name: str = "titrant"
     family: str | None = None
+    composite: bool = False
+    time_cost: float = 1.0
 
     # -- set-up ------------------------------------------------------------------------------------------
     def check(self, method: Method) -> None:
@@ -187,6 +222,57 @@ class Strategy:
         """The strategy's keys in the JSON result."""
         return {"mode": self.id, "back_metal": None}
 
+    # -- what the search needs ---------------------------------------------------------------------------
+    def applies(self, sample: Sample, search: Any) -> bool:
+        """Whether the strategy can serve this sample with this search space (a search leaves it out where not)."""
+        return True
+
+    def applies_when_asked(self, sample: Sample, search: Any) -> bool:
+        """Whether the strategy can serve the sample where the scenario lists it in ``search.modes`` (by default as
+        :meth:`applies`; a strategy searched by default only for some samples may serve more when asked)."""
+        return self.applies(sample, search)
+
+    def genes(self, sample: Sample, search: Any) -> dict[str, tuple]:
+        """The strategy's own variables for a search, beyond the method's (pH, buffer, titrant, masking, indicator,
+        ``back_metal``): name -> ``("real", low, high)`` or ``("choice", options)``."""
+        return {}
+
+    def method_fields(self, extra: dict[str, Any], sample: Sample, search: Any, base: dict[str, Any]) -> dict[str, Any]:
+        """The :class:`~optimiser.method.Method` keywords the strategy's genes (``extra``) stand for; ``base`` holds
+        the method's own keywords (pH, buffer, titrant, ...)."""
+        return {}
+
+    def prescreen(self, candidate: Any, scenario: Any) -> list[tuple[str, str]]:
+        """Violations (kind, text) of the strategy's own genes that need no equilibrium (a second step's indicator
+        outside its pH range, a complex added outside its pH range); kinds of :data:`optimiser.objectives.VIOLATIONS`."""
+        return []
+
+    def hazards(self, method: Any) -> tuple[int, ...]:
+        """Hazard classes (0-4) of the reagents the strategy adds beyond the method's own."""
+        return ()
+
+    def reagent_cautions(self, method: Any) -> list[tuple[str, int, tuple[str, ...]]]:
+        """(name, hazard class, cautions) of each reagent the strategy adds beyond the method's own."""
+        return []
+
+    # -- several titrations ----------------------------------------------------------------------------------
+    def simulate(self, sample: Sample, method: Method, n_points: int, pH_drift: bool, standardise: bool):
+        """Simulate every step of a composite strategy and return one :class:`~optimiser.titration.Titration` with
+        an end point per step (and per result); single titrations are simulated by :mod:`optimiser.titration`."""
+        raise NotImplementedError
+
+    def bench_steps(self, scenario: Any, method: Any, t: Any) -> list[str] | None:
+        """The numbered bench steps of a composite strategy (None: the single titration's procedure)."""
+        return None
+
+    def result_formula(self, scenario: Any, method: Any) -> str | None:
+        """How the titres become results, where the strategy has its own (None: the single titration's)."""
+        return None
+
+    def reagent_steps(self, method: Any, V0_mL: float) -> list[str]:
+        """Bench steps for what the strategy adds to a single titration after the buffer (a displacing complex)."""
+        return []
+
 
 def titrant_parts(plan: Plan, eq: Equilibrium, point: int) -> dict[str, float]:
     """Titrant held by each metal of the system at ``point``, and the rest ("unbound") [mol/L]."""
@@ -218,7 +304,9 @@ def budget_parts(plan: Plan, eq: Equilibrium, point: int, dilution_mL: float, in
     With A the analyte as the sample holds it, Y_m the titrant held by metal m, Y_u the titrant held by none, and
     the analyte's parts bound to the titrant (plus any inert complex) and to the indicator:
     error = sum over interferents of Y_m / A + Y_u / A - (analyte on the indicator) / A - (analyte bound to neither) / A
-    - (standard added but not held by the titrant) / A; the parts add up to the error exactly (mass balance).
+    - (standard added but not held by the titrant) / A; the parts add up to the error exactly (mass balance). After an
+    earlier step in the same solution (``plan.carry``), the titrant that step added less what the metals it titrated
+    hold is one part (``carried_over``: its over- or under-titration).
 
     Where the sample holds the standard's metal too, the equilibrium cannot tell the sample's atoms from the added
     ones: its titrant and indicator complexes are split in proportion to the two amounts (also when that metal is an
@@ -231,8 +319,13 @@ def budget_parts(plan: Plan, eq: Equilibrium, point: int, dilution_mL: float, in
     A, on_titrant, on_indicator = analyte_parts(plan, eq, point, dilution_mL, share)
     inert = inert_mmol / dilution_mL
     held = titrant_parts(plan, eq, point)
+    earlier = plan.carry.titrated if plan.carry is not None else ()
     parts = {f"cotitration:{m}": 100.0 * y / A for m, y in held.items()
-             if m not in ("unbound", standard) and m not in plan.sample.analyte}
+             if m not in ("unbound", standard) and m not in plan.sample.analyte and m not in earlier}
+    if plan.carry is not None and (earlier or plan.method.titrant in plan.carry.amounts_mmol):
+        # the titrant an earlier step added, less what the metals it titrated hold: its over- or under-titration
+        carried = plan.carry.amounts_mmol.get(plan.method.titrant, 0.0) / dilution_mL
+        parts["carried_over"] = 100.0 * (sum(held.get(m, 0.0) for m in earlier) - carried) / A
     parts["titrant_unbound"] = 100.0 * held["unbound"] / A
     if standard is not None:
         from_sample = held[standard] * f_sample

@@ -35,7 +35,7 @@ class DirectTitration(Strategy):
         return (V_ep - plan.V_eq) / plan.V_eq * 100.0
 
     def budget(self, plan: Plan, eq, point: int, V_ep: float) -> dict[str, float]:
-        return budget_parts(plan, eq, point, plan.sample.volume_mL + V_ep)
+        return budget_parts(plan, eq, point, plan.V_start + V_ep)
 
 
 __all__ = ["DirectTitration"]
