@@ -136,8 +136,7 @@ class Method:
     @property
     def strategy(self):
         """The :class:`optimiser.strategies.Strategy` that runs this method."""
-        from .strategies import strategy
-        return strategy(self.mode)
+        return _strategy(self.mode)
 
     @property
     def back_concentration(self) -> float:
@@ -172,3 +171,10 @@ class Method:
         levels = [self.titrant_info.hazard, self.buffer_info.hazard, self.indicator_info.hazard]
         levels += [agent.hazard for agent in self.masking_agents]
         return max(levels)
+
+
+def _strategy(mode: str):
+    """The strategy registered under ``mode`` (imported on first use: the strategies import this module)."""
+    global _strategy
+    from .strategies import strategy as _strategy
+    return _strategy(mode)

@@ -43,6 +43,7 @@ class Facts:
     margin: float | None
     sharpness_mL: float | None
     hazard: int
+    memory_share: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -61,6 +62,25 @@ def complexity_of(c: Candidate) -> float:
     titre: 1) and what the titrant adds (its data: fewer published methods and less certain constants than EDTA).
     Our own scale (common practice: simpler methods are preferred where they do the job)."""
     return len(c.masking) + c.strategy.complexity + catalogue().titrant(c.titrant).complexity
+
+
+def memory_share(scenario: Scenario, c: Candidate) -> float:
+    """Share (0-1) of a method's decisive constants that are from memory: each metal of the sample (and the
+    strategy's standard) with the titrant, the indicator with the metals it shows, each masking agent with the
+    metals of the sample. It adds to the bench complexity (a method that rests on remembered constants needs
+    checking before use; common practice: prefer the familiar)."""
+    from .constants import database
+
+    db = database()
+    metals = {db.metal(m) for m in (*scenario.sample.metals, *c.strategy.added_metals(c))}
+    used = [k for m in metals for k in db.complexes.get((m, c.titrant), ()) if len(k.stoichiometry) == 2]
+    shown = {db.metal(m) for m in scenario.sample.analyte} | {db.metal(c.strategy.complex_metal(c, scenario.sample))}
+    used += [k for m in shown for k in db.complexes.get((m, c.indicator), ()) if len(k.stoichiometry) == 2]
+    cat = catalogue()
+    for a, _ in c.masking:
+        lig = cat.masking_agent(a).ligand
+        used += [k for m in metals for k in db.complexes.get((m, lig), ())]
+    return sum(k.from_memory for k in used) / len(used) if used else 0.0
 
 
 def hazard_of(c: Candidate) -> int:
@@ -84,7 +104,8 @@ OBJECTIVES: dict[str, Objective] = {o.name: o for o in (
     Objective("sharpness", "mL", "end-point sharpness (10-90 % turned)", "smaller is better",
               lambda f: min(f.sharpness_mL, SHARPNESS_CAP) if f.sharpness_mL is not None else SHARPNESS_CAP),
     Objective("hazard", "class 0-4", "reagent hazard", "smaller is better", lambda f: float(f.hazard)),
-    Objective("complexity", "steps", "bench complexity", "smaller is better", lambda f: complexity_of(f.candidate)),
+    Objective("complexity", "steps", "bench complexity", "smaller is better",
+              lambda f: complexity_of(f.candidate) + f.memory_share),
 )}
 
 # kind of violation -> (constraint group it counts against, short text for summaries)
@@ -190,10 +211,50 @@ def acceptance_violations(scenario: Scenario, t: Titration) -> list[tuple[str, s
     return out
 
 
-def constraint_values(kinds) -> tuple[float, ...]:
-    """One pymoo inequality per constraint group: +1 where any violation counts against it, else -1."""
-    groups = {VIOLATIONS[kind][0] for kind in kinds}
-    return tuple(1.0 if g in groups else -1.0 for g in CONSTRAINTS)
+def constraint_values(kinds, amounts: dict[str, float] | None = None) -> tuple[float, ...]:
+    """One pymoo inequality per constraint group: the sum of its violations' graded amounts (how far from
+    feasible, each at least :data:`MIN_AMOUNT`; 1 where no amount is given), 0 where none counts against it."""
+    out = dict.fromkeys(CONSTRAINTS, 0.0)
+    for kind in dict.fromkeys(kinds):
+        out[VIOLATIONS[kind][0]] += max(MIN_AMOUNT, (amounts or {}).get(kind, 1.0))
+    return tuple(out[g] for g in CONSTRAINTS)
+
+
+MIN_AMOUNT = 0.01  # the least a violation counts (a criterion just missed is still missed)
+UNMEASURED = 3.0  # what a violation without a measure of its distance counts (a missing end point, a block)
+
+
+def violation_amounts(scenario: Scenario, c: Candidate, t: Titration | None) -> dict[str, float]:
+    """How far a candidate is from each criterion it fails, in units of that criterion's own limit (0.5 = half as
+    far again as allowed; pH units for the ranges): the graded constraint values the search moves along."""
+    from .readout import DROP_mL
+
+    cat = catalogue()
+    target = scenario.targets.max_error_percent
+    ind = cat.indicator(c.indicator)
+    a: dict[str, float] = {k: UNMEASURED for k in VIOLATIONS}
+    a["indicator_pH"] = max(ind.usable_pH[0] - c.pH, c.pH - ind.usable_pH[1], 0.0)
+    lo, hi = cat.buffer(c.buffer).pH_range
+    a["buffer"] = max(lo - c.pH, c.pH - hi, 0.0)
+    a["masking_pH"] = max([cat.masking_agent(m).min_pH - c.pH for m, _ in c.masking] + [0.0])
+    a["hazard"] = float(hazard_of(c) - scenario.search.max_hazard)
+    if t is None:
+        return a
+    err = t.error_percent
+    if err is not None:
+        a["error_far"] = abs(err) / (10 * target) - 1.0
+    parts = [abs(p) for p in t.standardised_budget.values()]
+    a["budget_part"] = max(parts, default=0.0) / target - 1.0
+    a["analyte_unbound"] = -t.budget.get("analyte_unbound", 0.0) / target - 1.0
+    a["cotitrated_share"] = max(t.cotitrated.values(), default=0.0) / COTITRATED_SHARE_MAX - 1.0
+    if t.pH_drift is not None:
+        a["pH_drift"] = abs(t.pH_drift) / PH_DRIFT_MAX - 1.0
+    if t.sharpness_mL is not None:
+        a["too_gradual"] = t.sharpness_mL / (READABLE_DROPS * DROP_mL) - 1.0
+    a["burette"] = t.titre_mL / scenario.burette_mL - 1.0
+    if t.endpoint_mL is None:  # how far the indicator is from turning: what is left to turn (less is nearer)
+        a["no_end_point"] = UNMEASURED
+    return a
 
 
 def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) -> float | None:
