@@ -56,6 +56,8 @@ def _no_worse(simpler: Evaluation, e: Evaluation, needed_margin: float | None = 
     ``needed_margin`` (what the error target needs: the margin beyond it buys nothing)."""
     if not simpler.feasible and e.feasible:
         return False
+    if simpler.feasible and not e.feasible:
+        return True
     a, b = simpler.standardised_error_percent, e.standardised_error_percent
     if a is None or b is None:
         return a is None and b is None
