@@ -129,9 +129,11 @@ def absolute_score(scenario: Scenario, e: Evaluation) -> float:
 
 
 def familiarity(e: Evaluation) -> float:
-    """How unfamiliar a method's reagents are: the titrant's share of the complexity (availability, cost,
-    published practice) plus the share of its decisive constants that are from memory (0 = the most familiar)."""
-    return catalogue().titrant(e.candidate.titrant).complexity + e.memory_share
+    """How unfamiliar a method is: the titrant's share of the complexity (availability, cost, published practice),
+    the strategy's (a second standard and titre), and the share of its decisive constants that are from memory
+    (0 = the most familiar: EDTA, a direct titration, published constants)."""
+    c = e.candidate
+    return catalogue().titrant(c.titrant).complexity + c.strategy.complexity + e.memory_share
 
 
 def recommend(front: Sequence[Evaluation], scenario: Scenario) -> tuple[Evaluation | None, str]:
@@ -143,8 +145,9 @@ def recommend(front: Sequence[Evaluation], scenario: Scenario) -> tuple[Evaluati
             f"({scenario.targets.max_error_percent:g} %), the one with the smallest weighted sum of the objectives, each "
             "normalised to 0-1 over the front (weights: " + ", ".join(f"{k} {w:g}" for k, w in zip(scenario.objectives, weights)) + ")"
             "; the complexity counts the titrant's availability and cost (its complexity in the data) and the share of "
-            "the method's decisive constants that are from memory, and a less familiar method is chosen only where "
-            f"it beats the most familiar one by more than {100 * CLEAR_WIN:g} % of the summed weights")
+            "the method's decisive constants that are from memory, and a less familiar method (another titrant, "
+            "another strategy, constants from memory) is chosen only where it beats the most familiar one by more than "
+            f"{100 * CLEAR_WIN:g} % of the summed weights")
     if not feas:
         return None, rule
     target = scenario.targets.max_error_percent

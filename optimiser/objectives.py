@@ -224,9 +224,16 @@ MIN_AMOUNT = 0.01  # the least a violation counts (a criterion just missed is st
 UNMEASURED = 3.0  # what a violation without a measure of its distance counts (a missing end point, a block)
 
 
+def _log_ratio(value: float, limit: float) -> float:
+    """log10(value / limit): 0 at the limit, 1 at ten times it (0 where the value is 0)."""
+    return math.log10(value / limit) if value > 0 and limit > 0 else 0.0
+
+
 def violation_amounts(scenario: Scenario, c: Candidate, t: Titration | None) -> dict[str, float]:
-    """How far a candidate is from each criterion it fails, in units of that criterion's own limit (0.5 = half as
-    far again as allowed; pH units for the ranges): the graded constraint values the search moves along."""
+    """How far a candidate is from each criterion it fails: log10 of the measure over its limit (0.3 = twice as
+    much as allowed, 1 = ten times), pH units for the ranges, hazard classes for the hazard, :data:`UNMEASURED` where
+    nothing measures the distance (no end point, a blocked indicator): the graded constraint values the search
+    moves along."""
     from .readout import DROP_mL
 
     cat = catalogue()
@@ -240,18 +247,19 @@ def violation_amounts(scenario: Scenario, c: Candidate, t: Titration | None) -> 
     a["hazard"] = float(hazard_of(c) - scenario.search.max_hazard)
     if t is None:
         return a
+    ratio = _log_ratio
     err = t.error_percent
     if err is not None:
-        a["error_far"] = abs(err) / (10 * target) - 1.0
+        a["error_far"] = ratio(abs(err), 10 * target)
     parts = [abs(p) for p in t.standardised_budget.values()]
-    a["budget_part"] = max(parts, default=0.0) / target - 1.0
-    a["analyte_unbound"] = -t.budget.get("analyte_unbound", 0.0) / target - 1.0
-    a["cotitrated_share"] = max(t.cotitrated.values(), default=0.0) / COTITRATED_SHARE_MAX - 1.0
+    a["budget_part"] = ratio(max(parts, default=0.0), target)
+    a["analyte_unbound"] = ratio(-t.budget.get("analyte_unbound", 0.0), target)
+    a["cotitrated_share"] = ratio(max(t.cotitrated.values(), default=0.0), COTITRATED_SHARE_MAX)
     if t.pH_drift is not None:
-        a["pH_drift"] = abs(t.pH_drift) / PH_DRIFT_MAX - 1.0
+        a["pH_drift"] = ratio(abs(t.pH_drift), PH_DRIFT_MAX)
     if t.sharpness_mL is not None:
-        a["too_gradual"] = t.sharpness_mL / (READABLE_DROPS * DROP_mL) - 1.0
-    a["burette"] = t.titre_mL / scenario.burette_mL - 1.0
+        a["too_gradual"] = ratio(t.sharpness_mL, READABLE_DROPS * DROP_mL)
+    a["burette"] = ratio(t.titre_mL, scenario.burette_mL)
     if t.endpoint_mL is None:  # how far the indicator is from turning: what is left to turn (less is nearer)
         a["no_end_point"] = UNMEASURED
     return a

@@ -161,13 +161,20 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 20, n_gen: int
     leaders = _leaders(scenario, [by_key[k] for k in surveyed], surveyed)
     _refine_structures(scenario, ev, leaders, surveyed)
     report(2)
+    # the recommendation's structure is chosen among what the seed does not touch (enumeration, survey, refinement)
+    settled = list(ev.cache.values())
+    pool = decision.pareto(decision.prune_masking(ev, decision.pareto(settled), scenario))
     generations = 0
     if n_gen > 0 and leaders:
         generations = _polish(scenario, ev, leaders, seed, pop_size, n_gen)
     report(3)
     all_evals = list(ev.cache.values())
     front = decision.pareto(decision.prune_masking(ev, decision.pareto(all_evals), scenario))
-    chosen, rule = decision.recommend(front, scenario)
+    chosen, rule = decision.recommend(pool, scenario)
+    rule += ("; the structure is chosen among the candidates of the enumeration and refinement, which do not depend on "
+             "the seed, and takes a polished candidate of the same structure where one dominates it")
+    if chosen is not None:
+        chosen = _dominating(scenario, chosen, front)
     notes = []
     if chosen is None:
         notes.append(decision.infeasible_note(all_evals))
@@ -197,6 +204,14 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 20, n_gen: int
                         meets_criteria=decision.meets_criteria(scenario, chosen), robust_pH=pH_w, robust_dose=doses,
                         robustness_pH_scan=scan_pH, robustness_dose_scan=scan_dose, conditional=curves,
                         notes=tuple(notes), stats=stats)
+
+
+def _dominating(scenario: Scenario, e: Evaluation, front: Sequence[Evaluation]) -> Evaluation:
+    """The best member of ``front`` of the same structure that dominates ``e`` (``e`` where none does)."""
+    F = np.array(e.F)
+    better = [x for x in front if structure_key(x.candidate) == structure_key(e.candidate) and x.feasible
+              and decision.meets_criteria(scenario, x) and np.all(np.array(x.F) <= F) and np.any(np.array(x.F) < F)]
+    return min(better, key=lambda x: (decision.absolute_score(scenario, x), x.candidate.key())) if better else e
 
 
 def _survey(scenario: Scenario, ev: Evaluator, structures: Sequence[Structure]) -> tuple[dict[tuple, Evaluation], int]:

@@ -2,9 +2,10 @@
 
 The survey gives every structure that the hard rules leave one simulated candidate. Its pH is chosen from
 Ringbom's model, which needs no equilibrium solve: on a 0.1 pH grid within the structure's range, the pH that
-maximises the smaller of the analyte's log(c K') and its selectivity margin over the interferents still in solution
-(those a masking agent holds or reduces by a stated assumption are left out), with the buffer and the masking agents
-at their survey doses. Ties go to the middle of the range.
+maximises the smaller of two surpluses, the analyte's log(c K') over what the target needs plus
+:data:`ANALYTE_EXTRA`, and its selectivity margin over the interferents still in solution (those a masking agent
+holds or reduces by a stated assumption are left out) over what the target needs; the buffer and the masking agents at
+their survey doses. Surpluses above :data:`COMFORTABLE` count as equal, and ties go to the middle of the range.
 """
 from __future__ import annotations
 
@@ -18,12 +19,15 @@ from .constants import database
 from .errors import MissingConstantError
 from .reagents import catalogue
 from .scenario import Scenario
-from .structures import Structure
+from .structures import Structure, required_log_cK
 
 BUFFER_LOG_RANGE = (-1.3, -0.3)  # log10 M of the buffer ligand's total: 0.05-0.5 M, the practical range (common practice)
 SURVEY_LOG_BUFFER = -0.7  # 0.2 M: the upper half of the practical range, where the buffer holds the pH (common practice)
 SURVEY_DOSE = 0.5  # the survey's masking doses: the middle of each agent's log dose range
 GRID_STEP = 0.1
+ANALYTE_EXTRA = 4.0  # log units of c K' beyond Ringbom's bound before the analyte counts as comfortably bound: the
+#                      indicator competes for it and the colour must turn within ten drops (our own survey heuristic)
+COMFORTABLE = 2.0  # log units of surplus beyond which the survey prefers the middle of the range (our own)
 
 
 def dose_of(agent: str, position: float) -> float:
@@ -48,6 +52,7 @@ class Survey:
         lo, hi = scenario.search.pH_range
         self.grid = np.round(np.arange(lo, hi + 1e-9, GRID_STEP), 3)
         self.memo: dict[tuple, np.ndarray] = {}
+        self.need = required_log_cK(scenario.targets.max_error_percent)
 
     def candidate(self, st: Structure) -> Candidate:
         doses = tuple(dose_of(a, SURVEY_DOSE) for a in st.masking)
@@ -94,6 +99,7 @@ class Survey:
                                   s.metals[m]) for m in s.interferents if db.metal(m) not in held and s.metals[m] > 0]
         except MissingConstantError:
             return np.full(self.grid.shape, np.nan)
-        if not others:
-            return analyte
-        return np.minimum(analyte, analyte - np.max(others, axis=0))
+        score = analyte - self.need - ANALYTE_EXTRA
+        if others:
+            score = np.minimum(score, analyte - np.max(others, axis=0) - self.need)
+        return np.minimum(score, COMFORTABLE)
