@@ -36,6 +36,7 @@ from .candidate import Candidate, buffers_for
 from .decision import strategy_of
 from .evaluation import Evaluation, Evaluator
 from .objectives import CONSTRAINTS, conditional_curves
+from .reagents import catalogue
 from .refinement import refine
 from .robustness import robustness
 from .scenario import Scenario
@@ -48,7 +49,10 @@ CC_PH = np.round(np.arange(1.0, 13.51, 0.25), 2)  # pH grid of the conditional-c
 REFINE_STRUCTURES = 10  # feasible structures whose continuous parts are refined (the survey's leaders)
 REFINE_NEAR = 4  # and the infeasible structures nearest to feasibility (at least this many where few are feasible)
 NEAR = 1.0  # ... whose graded violation is at most this (a criterion missed by its own limit at most)
-PH_STEP = 0.5  # the refinement's first pH scan over a structure's range, then +/-0.2 and +/-0.1 around its best
+PH_STEP = 0.5  # the refinement's first pH scan over a structure's range
+PATTERN_STRUCTURES = 5  # leaders refined further by a pattern search
+PATTERN_STEPS = (0.2, 0.1, 0.05)  # its steps (pH units, log units of the buffer total, positions of the doses)
+PATTERN_MOVES = 3  # moves at most per step
 DOSE_POSITIONS = (0.0, 0.25, 0.5, 0.75, 1.0)  # masking doses tried, as positions in each agent's log range
 PAIR_PRUNED = "a pair of masking agents where either agent alone does nothing the method without it does not (survey)"
 
@@ -266,15 +270,19 @@ def _leaders(scenario: Scenario, structures: Sequence[Structure], surveyed: dict
 
 def _refine_structures(scenario: Scenario, ev: Evaluator, leaders: Sequence[Structure],
                        surveyed: dict[tuple, Evaluation]) -> None:
-    """The continuous parts of each leader: a pH scan over its range, the masking doses and the buffer total at its
-    best pH, then the pH around its best point (all structures in one batch per step)."""
+    """The continuous parts of each leader: a pH scan over its range (at the survey's buffer total and at the
+    largest), the masking doses and the buffer total at its best pH, then a pattern search (pH, buffer total, doses;
+    the steps halved twice) from the best point of the first :data:`PATTERN_STRUCTURES` leaders. All structures go
+    in one batch per step."""
     best = {s.key: surveyed[s.key] for s in leaders}
     scan = []
     for s in leaders:
         lo, hi = s.pH_range
         c = best[s.key].candidate
+        levels = (c.log_buffer, BUFFER_LOG_RANGE[1]) if catalogue().buffer(s.buffer).ligand else (c.log_buffer,)
         for p in np.unique(np.round(np.r_[np.arange(lo, hi + 1e-9, PH_STEP), hi], 2)):
-            scan.append(s.candidate(p, c.log_buffer, tuple(d for _, d in c.masking)))
+            for lb in levels:
+                scan.append(s.candidate(p, lb, tuple(d for _, d in c.masking)))
     _update(scenario, best, ev.evaluate(scan))
     doses = []
     for s in leaders:
@@ -284,17 +292,37 @@ def _refine_structures(scenario: Scenario, ev: Evaluator, leaders: Sequence[Stru
                 d = [x for _, x in c.masking]
                 d[i] = dose_of(s.masking[i], q)
                 doses.append(s.candidate(c.pH, c.log_buffer, tuple(d)))
-        for lb in BUFFER_LOG_RANGE:
-            doses.append(s.candidate(c.pH, lb, tuple(x for _, x in c.masking)))
+        if catalogue().buffer(s.buffer).ligand:
+            doses += [s.candidate(c.pH, lb, tuple(x for _, x in c.masking)) for lb in BUFFER_LOG_RANGE]
     _update(scenario, best, ev.evaluate(doses))
-    for step in (0.2, 0.1):
-        fine = []
-        for s in leaders:
-            c = best[s.key].candidate
-            for p in (c.pH - step, c.pH + step):
-                if s.pH_range[0] <= p <= s.pH_range[1]:
-                    fine.append(s.candidate(p, c.log_buffer, tuple(x for _, x in c.masking)))
-        _update(scenario, best, ev.evaluate(fine))
+    top = leaders[:PATTERN_STRUCTURES]
+    for step in PATTERN_STEPS:
+        for _ in range(PATTERN_MOVES):
+            before = {s.key: best[s.key].candidate.key() for s in top}
+            _update(scenario, best, ev.evaluate([n for s in top for n in _neighbours(s, best[s.key].candidate, step)]))
+            if all(best[s.key].candidate.key() == before[s.key] for s in top):
+                break
+
+
+def _neighbours(s: Structure, c: Candidate, step: float) -> list[Candidate]:
+    """The pattern search's neighbours of a candidate: pH +/- step, log buffer total +/- step, each dose's position
+    +/- step (within their ranges)."""
+    pos = [position_of(a, d) for a, d in c.masking]
+    out = []
+    for p in (c.pH - step, c.pH + step):
+        if s.pH_range[0] - 1e-9 <= p <= s.pH_range[1] + 1e-9:
+            out.append(s.candidate(p, c.log_buffer, tuple(d for _, d in c.masking)))
+    if catalogue().buffer(s.buffer).ligand:
+        for lb in (c.log_buffer - step, c.log_buffer + step):
+            if BUFFER_LOG_RANGE[0] - 1e-9 <= lb <= BUFFER_LOG_RANGE[1] + 1e-9:
+                out.append(s.candidate(c.pH, lb, tuple(d for _, d in c.masking)))
+    for i, a in enumerate(s.masking):
+        for q in (pos[i] - step, pos[i] + step):
+            if -1e-9 <= q <= 1 + 1e-9:
+                d = [x for _, x in c.masking]
+                d[i] = dose_of(a, min(1.0, max(0.0, q)))
+                out.append(s.candidate(c.pH, c.log_buffer, tuple(d)))
+    return out
 
 
 def _best(scenario: Scenario, evals: Sequence[Evaluation]) -> Evaluation:
