@@ -244,19 +244,24 @@ def bench_search(seeds=range(1, 11)):
 
 
 def generated_scenarios(n, seed=0):
-    """``n`` small random scenarios (two or three metals, a narrow space) for the feasibility check against the grid."""
+    """``n`` small random scenarios for the feasibility check against the grid: an analyte that a buffer-indicator
+    pair is used for in practice (common practice), one or two interferents at 1-30 % of it, up to two masking
+    agents, EDTA, a direct titration."""
     from optimiser.scenario import parse
     rng = np.random.default_rng(seed)
     metals = ["Mg", "Ca", "Mn", "Co", "Ni", "Cu", "Zn", "Cd", "Pb", "Al", "Bi", "Fe(III)"]
-    pairs = [("ammonia", "EBT", (8.5, 10.5)), ("ammonia", "PAN", (8.0, 10.0)), ("hexamine", "xylenol_orange", (4.5, 6.3)),
-             ("acetate", "PAN", (3.8, 5.8)), ("NaOH", "murexide", (11.8, 13.0)), ("nitric_acid", "xylenol_orange", (1.0, 3.2))]
+    pairs = [("ammonia", "EBT", (8.5, 10.5), ("Mg", "Zn", "Cd")), ("ammonia", "PAN", (8.0, 10.0), ("Cu", "Ni", "Zn")),
+             ("hexamine", "xylenol_orange", (4.5, 6.3), ("Zn", "Pb", "Cd")), ("acetate", "PAN", (3.8, 5.8), ("Cu", "Zn")),
+             ("NaOH", "murexide", (11.8, 13.0), ("Ca",)), ("nitric_acid", "xylenol_orange", (1.0, 3.2), ("Bi",))]
     out = []
     for k in range(n):
-        ms = list(rng.choice(metals, size=int(rng.integers(1, 3)) + 1, replace=False))
-        buf, ind, (lo, hi) = pairs[int(rng.integers(len(pairs)))]
-        conc = 10 ** rng.uniform(-3.3, -2.3)
+        buf, ind, (lo, hi), analytes = pairs[int(rng.integers(len(pairs)))]
+        analyte = analytes[int(rng.integers(len(analytes)))]
+        others = [m for m in metals if m != analyte]
+        ms = [analyte] + list(rng.choice(others, size=int(rng.integers(1, 3)), replace=False))
+        conc = 10 ** rng.uniform(-3.3, -2.5)
         lines = [f"name: gen-{k}", "sample: {volume: 25 mL}", "analyte:", "  metals:", f"    {ms[0]}: {conc:.3g} M",
-                 "interferents:"] + [f"  {m}: {conc * 10 ** rng.uniform(-1.5, 0):.3g} M" for m in ms[1:]]
+                 "interferents:"] + [f"  {m}: {conc * 10 ** rng.uniform(-2, -0.5):.3g} M" for m in ms[1:]]
         masks = [m for m in ("TEA", "fluoride", "thiosulfate", "citrate") if rng.random() < 0.3][:2]
         lines += ["titrant: {concentration: 0.01 M}",
                   f"search: {{pH: [{lo}, {hi}], titrants: [EDTA], buffers: [{buf}], indicators: [{ind}], "

@@ -28,19 +28,12 @@ DOSE_STEPS = 8  # the dose grid: this many steps over each agent's log dose rang
 def refine(scenario: Scenario, ev: Evaluator, e: Evaluation) -> tuple[Evaluation, str]:
     """The refined method (evaluated like any candidate) and a sentence that says what was done."""
     target = scenario.targets.max_error_percent
+    lo, hi = _allowed(scenario, e.candidate)
+    said: list[str] = []
+    e, w = _centre(scenario, ev, e, lo, hi, said)
     c = e.candidate
-    lo, hi = _allowed(scenario, c)
-    w = _window(scenario, e, lo, hi)
-    said = []
-    if w is not None:
-        centre = round(float(np.clip((w[0] + w[1]) / 2, lo, hi)), 2)
-        if abs(centre - c.pH) >= 0.01:
-            moved = ev.evaluate([replace(c, pH=centre)])[0]
-            if _ok(scenario, moved):
-                e, c = moved, moved.candidate
-                said.append(f"the set-point was moved to pH {centre:.2f}, the middle of the pH window where the "
-                            f"error stays within target ({w[0]:.2f}-{w[1]:.2f})")
     edges = [p for p in (w if w is not None else ()) if abs(p - c.pH) > 1e-6]
+    cut = False
     for a, dose in c.masking:
         here = position_of(a, dose)
         tries = [q for q in np.linspace(0.0, 1.0, DOSE_STEPS + 1) if q < here - 1e-6]
@@ -51,9 +44,27 @@ def refine(scenario: Scenario, ev: Evaluator, e: Evaluation) -> tuple[Evaluation
             if _ok(scenario, v) and _holds(scenario, v, edges, target):
                 said.append(f"{a} was cut from {1000 * dose:.3g} to {1000 * dict(v.candidate.masking)[a]:.3g} mM, "
                             "the smallest dose that keeps the error within target across that window")
-                e, c = v, v.candidate
+                e, c, cut = v, v.candidate, True
                 break
+    if cut:  # the window moves with the doses: centred once more
+        e, _ = _centre(scenario, ev, e, lo, hi, said)
     return e, "; ".join(said) if said else "the set-point and doses were kept (already central and least)"
+
+
+def _centre(scenario: Scenario, ev: Evaluator, e: Evaluation, lo: float, hi: float,
+            said: list[str]) -> tuple[Evaluation, tuple[float, float] | None]:
+    """The method moved to the middle of its pH window (within ``lo``-``hi``) where it stays feasible there."""
+    c = e.candidate
+    w = _window(scenario, e, lo, hi)
+    if w is not None:
+        centre = round(float(np.clip((w[0] + w[1]) / 2, lo, hi)), 2)
+        if abs(centre - c.pH) >= 0.01:
+            moved = ev.evaluate([replace(c, pH=centre)])[0]
+            if _ok(scenario, moved):
+                said.append(f"the set-point was moved to pH {centre:.2f}, the middle of the pH window where the "
+                            f"error stays within target ({w[0]:.2f}-{w[1]:.2f})")
+                return moved, w
+    return e, w
 
 
 def _allowed(scenario: Scenario, c) -> tuple[float, float]:
