@@ -8,6 +8,7 @@ inequality per group) and a short text for summaries. Adding an objective: one :
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
@@ -275,13 +276,12 @@ def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) ->
     ligands. None when no interferent is left.
     """
     s = scenario.sample
-    cond = Conditions(s.ionic_strength_M, s.temperature_C)
-    ligands = c.ligand_totals()
+    ligands = tuple(sorted(c.ligand_totals().items()))
 
     def log_cK(metal: str, conc: float) -> float:
         if conc <= 0:
             return -math.inf
-        k = conditional_constant(metal, c.titrant, c.pH, ligands, cond).log_K_conditional
+        k = _log_K_conditional(metal, c.titrant, float(c.pH), ligands, float(s.ionic_strength_M), float(s.temperature_C))
         return float(feasibility(k, conc))
 
     try:
@@ -299,6 +299,13 @@ def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) ->
     except MissingConstantError:
         return None
     return None if worst == -math.inf else analyte - worst
+
+
+@lru_cache(maxsize=50_000)
+def _log_K_conditional(metal: str, titrant: str, pH: float, ligands: tuple, I: float, T: float) -> float:
+    """log K' of a metal with a titrant at one pH, ligand totals and conditions (memoised: the candidates of a search
+    that differ only in their indicator or strategy share it)."""
+    return float(conditional_constant(metal, titrant, pH, dict(ligands), Conditions(I, T)).log_K_conditional)
 
 
 def conditional_curves(scenario: Scenario, c: Candidate | None, pH: np.ndarray) -> dict[str, np.ndarray]:
