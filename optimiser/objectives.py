@@ -261,6 +261,8 @@ def violation_amounts(scenario: Scenario, c: Candidate, t: Titration | None) -> 
     if t.sharpness_mL is not None:
         a["too_gradual"] = ratio(t.sharpness_mL, READABLE_DROPS * DROP_mL)
     a["burette"] = ratio(t.titre_mL, scenario.burette_mL)
+    solid = max((t.speciation_start.get(m, {}).get("solid", 0.0) for m in scenario.sample.analyte), default=0.0)
+    a["analyte_solid"] = UNMEASURED * solid  # the share of the analyte precipitated
     if t.endpoint_mL is None:  # how far the indicator is from turning: what is left to turn (less is nearer)
         a["no_end_point"] = UNMEASURED
     return a

@@ -3,8 +3,9 @@
 1. **Enumerate** every structure (titrant, indicator, buffer, masking agents, strategy, standard) and prune it by
    the hard rules of :mod:`optimiser.structures` (no simulation).
 2. **Survey**: simulate every structure left once, at the pH where Ringbom's model favours it
-   (:mod:`optimiser.survey`). A pair of masking agents is surveyed where each agent alone does something the
-   method without it does not.
+   (:mod:`optimiser.survey`); those that just miss feasibility get a second look at the middle and the far side of
+   their range. A pair of masking agents is surveyed where each agent alone does something the method without it
+   does not.
 3. **Refine** the continuous parts (pH, the masking doses, the buffer total) of the structures that lead:
    those on the survey's Pareto front, or where none is feasible, those nearest to feasibility (the constraint
    values are graded amounts, :func:`optimiser.objectives.violation_amounts`). The pH is scanned over each
@@ -42,12 +43,12 @@ from .robustness import robustness
 from .scenario import Scenario
 from .search_stats import SearchStats
 from .structures import Structure, enumerate_structures, structure_key
-from .survey import BUFFER_LOG_RANGE, SURVEY_DOSE, Survey, dose_of, position_of
+from .survey import BUFFER_LOG_RANGE, EDGE, SURVEY_DOSE, Survey, dose_of, position_of
 from .titration import Titration, simulate
 
 CC_PH = np.round(np.arange(1.0, 13.51, 0.25), 2)  # pH grid of the conditional-constant curves in the result
 REFINE_STRUCTURES = 10  # feasible structures whose continuous parts are refined (the survey's leaders)
-REFINE_NEAR = 4  # and the infeasible structures nearest to feasibility (at least this many where few are feasible)
+REFINE_NEAR = 6  # and the infeasible structures nearest to feasibility (at least this many where few are feasible)
 NEAR = 1.0  # ... whose graded violation is at most this (a criterion missed by its own limit at most)
 PH_STEP = 0.5  # the refinement's first pH scan over a structure's range
 PATTERN_STRUCTURES = 5  # leaders refined further by a pattern search
@@ -234,6 +235,18 @@ def _survey(scenario: Scenario, ev: Evaluator, structures: Sequence[Structure]) 
         else:
             skipped += 1
     out.update({s.key: e for s, e in zip(pairs, ev.evaluate([survey.candidate(s) for s in pairs]))})
+    # a second look at the structures that just missed: the middle and the far side of their range
+    near = [s for s in structures if s.key in out and not out[s.key].feasible and out[s.key].violation <= NEAR]
+    again, owners = [], []
+    for s in near:
+        c = out[s.key].candidate
+        lo, hi = s.pH_range
+        for p in ((lo + hi) / 2, hi - EDGE * (hi - lo) if c.pH < (lo + hi) / 2 else lo + EDGE * (hi - lo)):
+            if abs(p - c.pH) > 0.05:
+                again.append(s.candidate(p, c.log_buffer, tuple(d for _, d in c.masking)))
+                owners.append(s.key)
+    for k, e in zip(owners, ev.evaluate(again)):
+        out[k] = _best(scenario, [out[k], e])
     return out, skipped
 
 
@@ -250,7 +263,8 @@ def _does_something(e: Evaluation, base: Evaluation) -> bool:
 
 def _leaders(scenario: Scenario, structures: Sequence[Structure], surveyed: dict[tuple, Evaluation]) -> list[Structure]:
     """The structures whose continuous parts are refined: the survey's feasible ones, front by front (Pareto
-    layers, each by the recommendation's weighted score), then where few are feasible the nearest to feasibility."""
+    layers; in each, structures whose titrant, indicator, buffer and strategy are not yet among the leaders first,
+    then by the recommendation's weighted score), then the nearest to feasibility."""
     feas = [s for s in structures if surveyed[s.key].feasible]
     out: list[Structure] = []
     rest = list(feas)
@@ -258,14 +272,16 @@ def _leaders(scenario: Scenario, structures: Sequence[Structure], surveyed: dict
         layer = decision.pareto([surveyed[s.key] for s in rest], dedupe=False)
         keys = {e.candidate.key() for e in layer}
         now = [s for s in rest if surveyed[s.key].candidate.key() in keys]
-        now.sort(key=lambda s: (decision.weighted_score(scenario, [surveyed[x.key] for x in rest], surveyed[s.key]),
+        seen = {(x.titrant, x.indicator, x.buffer, x.mode) for x in out}
+        now.sort(key=lambda s: ((s.titrant, s.indicator, s.buffer, s.mode) in seen,  # another base first (diversity)
+                                decision.weighted_score(scenario, [surveyed[x.key] for x in rest], surveyed[s.key]),
                                 s.key))
         out += now[:REFINE_STRUCTURES - len(out)]
         rest = [s for s in rest if s not in now]
     near = sorted((s for s in structures if not surveyed[s.key].feasible),
                   key=lambda s: (surveyed[s.key].violation, s.key))
     n_near = sum(surveyed[s.key].violation <= NEAR for s in near[:REFINE_NEAR])
-    return out + near[:max(n_near, REFINE_NEAR - len(out))]
+    return out + near[:max(n_near, min(REFINE_NEAR, REFINE_STRUCTURES - len(out)))]
 
 
 def _refine_structures(scenario: Scenario, ev: Evaluator, leaders: Sequence[Structure],

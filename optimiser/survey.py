@@ -27,6 +27,7 @@ SURVEY_DOSE = 0.5  # the survey's masking doses: the middle of each agent's log 
 GRID_STEP = 0.1
 ANALYTE_EXTRA = 4.0  # log units of c K' beyond Ringbom's bound before the analyte counts as comfortably bound: the
 #                      indicator competes for it and the colour must turn within ten drops (our own survey heuristic)
+EDGE = 0.15  # share of a structure's pH range kept clear at each end by the survey (our own)
 COMFORTABLE = 2.0  # log units of surplus beyond which the survey prefers the middle of the range (our own)
 
 
@@ -60,6 +61,7 @@ class Survey:
 
     def pH(self, st: Structure, doses: tuple[float, ...]) -> float:
         lo, hi = st.pH_range
+        lo, hi = lo + EDGE * (hi - lo), hi - EDGE * (hi - lo)  # reagents work inside their ranges, not at the edges
         inside = (self.grid >= lo - 1e-9) & (self.grid <= hi + 1e-9)
         mid = round((lo + hi) / 2, 3)
         if not inside.any():
