@@ -74,3 +74,44 @@ def front_hypervolumes(a: Sequence[Evaluation], b: Sequence[Evaluation]) -> tupl
     def hv(F):
         return hypervolume((F - lo) / span, ref) if len(F) else 0.0
     return hv(Fa), hv(Fb)
+
+
+def random_candidate(scenario: Scenario, rng: np.random.Generator) -> Candidate:
+    """One uniformly random point of the scenario's own space (every choice it allows, nothing it forbids)."""
+    sp = scenario.search
+    cat = catalogue()
+    pH = float(rng.uniform(*sp.pH_range))
+    buf = sp.buffers[int(rng.integers(len(sp.buffers)))]
+    n_mask = int(rng.integers(sp.max_masking_agents + 1)) if sp.masking else 0
+    agents = [sp.masking[i] for i in rng.permutation(len(sp.masking))[:n_mask]]
+    masks = []
+    for a in agents:
+        lo, hi = (math.log10(v) for v in cat.masking_agent(a).dose_range_M)
+        masks.append((a, float(10 ** rng.uniform(lo, hi))))
+    mode = sp.modes[int(rng.integers(len(sp.modes)))]
+    return Candidate(round(pH, 4), buf, round(float(rng.uniform(*BUFFER_LOG_RANGE)), 3),
+                     sp.titrants[int(rng.integers(len(sp.titrants)))], tuple(sorted(masks)),
+                     sp.indicators[int(rng.integers(len(sp.indicators)))], mode,
+                     sp.back_metals[int(rng.integers(len(sp.back_metals)))])
+
+
+def random_search(scenario: Scenario, budget: int, seed: int, batch: int = 200) -> tuple[list[Evaluation], Evaluator]:
+    """Uniform random sampling until ``budget`` candidates were simulated (pre-screened ones do not count)."""
+    rng = np.random.default_rng(seed)
+    ev = Evaluator(scenario)
+    out: list[Evaluation] = []
+    tries = 0
+    while ev.n_simulated < budget and tries < 200 * budget:
+        n = min(batch, budget - ev.n_simulated)
+        cands = []
+        while len(cands) < n and tries < 200 * budget:  # fill the batch with candidates that pass the quick checks
+            c = random_candidate(scenario, rng)
+            tries += 1
+            out.append(ev.evaluate([c])[0]) if not _passes(scenario, c) else cands.append(c)
+        out += ev.evaluate(cands)
+    return out, ev
+
+
+def _passes(scenario: Scenario, c: Candidate) -> bool:
+    from optimiser.objectives import prescreen
+    return not prescreen(scenario, c, buffers_for)

@@ -471,6 +471,9 @@ def _cmd_simulate(a) -> int:
     return 0
 
 
+SEARCH_STEPS = ("enumeration and survey", "refinement", "polishing", "recommendation")  # run_search's progress steps
+
+
 def _cmd_run(a) -> int:
     from . import report
     from .analysis import analyse
@@ -486,9 +489,9 @@ def _cmd_run(a) -> int:
     _solver_ready()
     name = printable(sc.name)
 
-    def progress(gen, n_gen, evals):
-        msg = f"searching {name}: generation {gen}/{n_gen}, {evals} evaluations"
-        sys.stderr.write(("\r" + msg) if tty else (msg + "\n" if gen in (1, n_gen) or gen % 5 == 0 else ""))
+    def progress(step, n_steps, evals):
+        msg = f"searching {name}: step {step}/{n_steps} ({SEARCH_STEPS[step - 1]}), {evals} evaluations"
+        sys.stderr.write(("\r" + msg) if tty else (msg + "\n"))
         sys.stderr.flush()
     result = run_search(sc, seed=seed, progress=progress)
     if tty:
@@ -498,6 +501,10 @@ def _cmd_run(a) -> int:
                                           analysis=analyse(result))
     e = result.recommended
     print(f"{name}: {result.evaluations} evaluations in {result.wall_time_s:.1f} s (seed {seed})")
+    st = result.stats
+    print(f"  structures: {st.structures_considered} considered, {st.structures_considered - sum(n for _, n in st.structures_pruned)} "
+          f"after the hard rules, {st.structures_simulated} simulated, {st.structures_feasible} feasible; "
+          f"{st.candidates_simulated} candidates simulated, {st.candidates_prescreened} pre-screened")
     if not result.meets_criteria:
         print("  NO METHOD MEETS THE CRITERIA" + (": the closest compromise below is not a procedure to follow"
                                                   if e is not None else ""))

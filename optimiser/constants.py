@@ -136,7 +136,17 @@ def davies_A(temperature_C: ArrayLike) -> NDArray[np.float64]:
     >>> round(float(davies_A(25.0)), 4)
     0.5108
     """
-    t = np.asarray(temperature_C, dtype=float)
+    if np.ndim(temperature_C) == 0:
+        return _davies_A_scalar(float(temperature_C))
+    return _davies_A(np.asarray(temperature_C, dtype=float))
+
+
+@lru_cache(maxsize=256)
+def _davies_A_scalar(t: float) -> np.float64:
+    return _davies_A(np.asarray(t, dtype=float))
+
+
+def _davies_A(t: NDArray[np.float64]) -> NDArray[np.float64]:
     eps = 87.740 - 0.40008 * t + 9.398e-4 * t ** 2 - 1.410e-6 * t ** 3
     rho = 1.0 - (t - 3.98) ** 2 * (t + 283.0) / (503570.0 * (t + 67.26))
     return 1.82483e6 * np.sqrt(rho) * (eps * (t + 273.15)) ** -1.5
@@ -413,13 +423,31 @@ def constant_table(constants: list[FormationConstant] | tuple[FormationConstant,
                       np.nan if c.dH_kJ_mol is None else c.dH_kJ_mol] for c in constants], dtype=float).reshape(-1, 5).T
 
 
+_CORRECTED: dict[tuple, tuple] = {}  # memo of corrected(): (constant ids, I, T) -> (constants, log K)
+
+
 def corrected(constants: list[FormationConstant] | tuple[FormationConstant, ...] | NDArray[np.float64],
               ionic_strength_M: ArrayLike, temperature_C: ArrayLike, A: ArrayLike | None = None) -> NDArray[np.float64]:
     """log K of several constants (or their :func:`constant_table`) at the sample's conditions.
 
     Shape ``broadcast(I, T).shape + (len,)``.
     """
+    memo = None
+    if A is None and not isinstance(constants, np.ndarray) and np.ndim(ionic_strength_M) == 0 and np.ndim(temperature_C) == 0:
+        # at a fixed ionic strength and temperature the corrections repeat for every candidate of a search: kept
+        # (the constants themselves are held with the value, so that their ids stay theirs while it is kept)
+        memo = (tuple(map(id, constants)), float(ionic_strength_M), float(temperature_C))
+        hit = _CORRECTED.get(memo)
+        if hit is not None:
+            return hit[1]
     cols = constants if isinstance(constants, np.ndarray) else constant_table(constants)
+    if memo is not None:
+        if len(_CORRECTED) > 50_000:
+            _CORRECTED.clear()
+        out = corrected(cols, ionic_strength_M, temperature_C)
+        out.flags.writeable = False
+        _CORRECTED[memo] = (tuple(constants), out)
+        return out
     if not cols.shape[1]:
         return np.zeros(np.broadcast(np.asarray(ionic_strength_M), np.asarray(temperature_C)).shape + (0,))
     I = np.asarray(ionic_strength_M, dtype=float)[..., None]

@@ -27,7 +27,7 @@ def strategy_of(e: Evaluation) -> str:
     return "pH control"
 
 
-def pareto(evals: Sequence[Evaluation]) -> list[Evaluation]:
+def pareto(evals: Sequence[Evaluation], dedupe: bool = True) -> list[Evaluation]:
     """The non-dominated feasible evaluations (all of them where none is feasible), near-duplicates dropped."""
     feas = [e for e in evals if e.feasible] or list(evals)
     F = np.array([e.F for e in feas])
@@ -36,6 +36,8 @@ def pareto(evals: Sequence[Evaluation]) -> list[Evaluation]:
         dominated = np.any(np.all(F <= F[i], axis=1) & np.any(F < F[i], axis=1))
         if not dominated:
             keep.append(feas[i])
+    if not dedupe:
+        return keep
     # deduplicate near-identical members (same discrete choices, objectives within rounding)
     out, seen = [], set()
     for e in sorted(keep, key=lambda e: e.F):
@@ -48,10 +50,14 @@ def pareto(evals: Sequence[Evaluation]) -> list[Evaluation]:
     return out
 
 
-def _no_worse(simpler: Evaluation, e: Evaluation) -> bool:
-    """True when a method without some masking agent does the job as well (small tolerances, our own)."""
+def _no_worse(simpler: Evaluation, e: Evaluation, needed_margin: float | None = None) -> bool:
+    """True when a method without some masking agent does the job as well (small tolerances, our own): no less
+    feasible, no larger error, no slower colour change, and a selectivity margin no smaller, or already at least
+    ``needed_margin`` (what the error target needs: the margin beyond it buys nothing)."""
     if not simpler.feasible and e.feasible:
         return False
+    if simpler.feasible and not e.feasible:
+        return True
     a, b = simpler.standardised_error_percent, e.standardised_error_percent
     if a is None or b is None:
         return a is None and b is None
@@ -59,7 +65,7 @@ def _no_worse(simpler: Evaluation, e: Evaluation) -> bool:
         return False
     if simpler.sharpness_mL is not None and e.sharpness_mL is not None and simpler.sharpness_mL > 1.05 * e.sharpness_mL + 0.005:
         return False
-    if simpler.margin is not None:
+    if simpler.margin is not None and (needed_margin is None or simpler.margin < needed_margin):
         if e.margin is None and simpler.margin < 6.0:  # 6: about 0.1 % (Ringbom; textbook threshold)
             return False
         if e.margin is not None and simpler.margin < e.margin - 0.1:
@@ -67,12 +73,17 @@ def _no_worse(simpler: Evaluation, e: Evaluation) -> bool:
     return True
 
 
-def prune_masking(evaluator: Evaluator, front: Sequence[Evaluation]) -> list[Evaluation]:
-    """Drop every masking agent that does nothing (a practitioner adds no reagent without a reason).
+def prune_masking(evaluator: Evaluator, front: Sequence[Evaluation], scenario: Scenario | None = None) -> list[Evaluation]:
+    """Drop every masking agent that does nothing needed (a practitioner adds no reagent without a reason).
 
-    Each member loses, one at a time, any agent whose removal leaves the error, sharpness, margin and feasibility no
-    worse; the simpler variants are evaluated (in batch) like any other candidate.
+    Each member loses, one at a time, any agent whose removal leaves the error, sharpness and feasibility no worse
+    and the selectivity margin no smaller, or already at what the scenario's error target needs
+    (:func:`optimiser.structures.required_log_cK`); the simpler variants are evaluated (in batch) like any other
+    candidate.
     """
+    from .structures import required_log_cK
+
+    needed = required_log_cK(scenario.targets.max_error_percent) if scenario is not None else None
     current = list(front)
     for _ in range(3):  # at most two agents per method
         variants, owners = [], []
@@ -84,12 +95,45 @@ def prune_masking(evaluator: Evaluator, front: Sequence[Evaluation]) -> list[Eva
             break
         changed = False
         for k, v in zip(owners, evaluator.evaluate(variants)):
-            if len(v.candidate.masking) < len(current[k].candidate.masking) and _no_worse(v, current[k]):
+            if len(v.candidate.masking) < len(current[k].candidate.masking) and _no_worse(v, current[k], needed):
                 current[k] = v
                 changed = True
         if not changed:
             break
     return list({e.candidate.key(): e for e in current}.values())
+
+
+CLEAR_WIN = 0.1  # share of the sum of the weights by which a less familiar method must beat the most familiar (our own)
+ABSOLUTE_SCALES = {"error": None, "selectivity": 2.0, "sharpness": 0.5, "hazard": 1.0, "complexity": 1.0}
+# fixed scales of the objectives where no front is at hand to normalise over (the error's is the scenario's target;
+# 2 log units of margin, 0.5 mL (ten drops) of sharpness, one hazard class, one bench step: our own)
+
+
+def weighted_score(scenario: Scenario, pool: Sequence[Evaluation], e: Evaluation) -> float:
+    """The recommendation's score of ``e``: the weighted sum of its objectives, each normalised to 0-1 over
+    ``pool``."""
+    weights = np.array([scenario.targets.weights[k] for k in scenario.objectives])
+    F = np.array([x.F for x in pool])
+    lo, hi = F.min(axis=0), F.max(axis=0)
+    span = np.where(hi > lo, hi - lo, 1.0)
+    return float(((np.array(e.F) - lo) / span) @ weights)
+
+
+def absolute_score(scenario: Scenario, e: Evaluation) -> float:
+    """The weighted sum of the objectives on fixed scales (:data:`ABSOLUTE_SCALES`): comparable across searches."""
+    total = 0.0
+    for k, f in zip(scenario.objectives, e.F):
+        scale = ABSOLUTE_SCALES.get(k) or scenario.targets.max_error_percent
+        total += scenario.targets.weights[k] * f / scale
+    return total
+
+
+def familiarity(e: Evaluation) -> float:
+    """How unfamiliar a method is: the titrant's share of the complexity (availability, cost, published practice),
+    the strategy's (a second standard and titre), and the share of its decisive constants that are from memory
+    (0 = the most familiar: EDTA, a direct titration, published constants)."""
+    c = e.candidate
+    return catalogue().titrant(c.titrant).complexity + c.strategy.complexity + e.memory_share
 
 
 def recommend(front: Sequence[Evaluation], scenario: Scenario) -> tuple[Evaluation | None, str]:
@@ -99,7 +143,11 @@ def recommend(front: Sequence[Evaluation], scenario: Scenario) -> tuple[Evaluati
     rule = ("among feasible Pareto members (every acceptance criterion met) whose predicted |error| after "
             "standardisation meets the target "
             f"({scenario.targets.max_error_percent:g} %), the one with the smallest weighted sum of the objectives, each "
-            "normalised to 0-1 over the front (weights: " + ", ".join(f"{k} {w:g}" for k, w in zip(scenario.objectives, weights)) + ")")
+            "normalised to 0-1 over the front (weights: " + ", ".join(f"{k} {w:g}" for k, w in zip(scenario.objectives, weights)) + ")"
+            "; the complexity counts the titrant's availability and cost (its complexity in the data) and the share of "
+            "the method's decisive constants that are from memory, and a less familiar method (another titrant, "
+            "another strategy, constants from memory) is chosen only where it beats the most familiar one by more than "
+            f"{100 * CLEAR_WIN:g} % of the summed weights")
     if not feas:
         return None, rule
     target = scenario.targets.max_error_percent
@@ -107,12 +155,16 @@ def recommend(front: Sequence[Evaluation], scenario: Scenario) -> tuple[Evaluati
     pool = within or feas
     if not within:
         rule += "; no member meets the error target, so the whole feasible front was used"
-    F = np.array([e.F for e in pool])
-    lo, hi = F.min(axis=0), F.max(axis=0)
-    span = np.where(hi > lo, hi - lo, 1.0)
-    score = ((F - lo) / span) @ weights
-    order = np.lexsort((np.array([abs(e.standardised_error_percent or 0) for e in pool]), score))
-    return pool[int(order[0])], rule
+    score = np.array([weighted_score(scenario, pool, e) for e in pool])
+    order = sorted(range(len(pool)), key=lambda i: (round(score[i], 9), abs(pool[i].standardised_error_percent or 0),
+                                                    pool[i].candidate.key()))
+    best = pool[order[0]]
+    least = min(familiarity(e) for e in pool)
+    if familiarity(best) > least + 1e-9:
+        familiar = [i for i in order if familiarity(pool[i]) <= least + 1e-9]
+        if score[familiar[0]] <= score[order[0]] + CLEAR_WIN * float(weights.sum()):
+            best = pool[familiar[0]]
+    return best, rule
 
 
 def compromise(evals: Sequence[Evaluation]) -> Evaluation | None:

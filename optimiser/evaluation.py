@@ -12,7 +12,7 @@ from .titration import Titration, simulate_many
 
 SEARCH_POINTS = 41  # coarse curve points per candidate during the search (the recommendation is re-run finer)
 SIMULATION = {"standardise": True, "pH_drift": True}  # what every candidate's criteria need
-SIMULATION_FAILURES = ("missing_constant", "inapplicable", "not_converged")  # violations a simulation itself raises
+SIMULATION_FAILURES = {"missing_constant", "inapplicable", "not_converged"}  # kinds of a simulation that failed
 
 
 @dataclass(frozen=True)
@@ -29,6 +29,7 @@ class Evaluation:
     kinds: tuple[str, ...]
     F: tuple[float, ...]
     G: tuple[float, ...]
+    memory_share: float = 0.0
 
     @property
     def feasible(self) -> bool:
@@ -36,8 +37,14 @@ class Evaluation:
 
     @property
     def simulated(self) -> bool:
-        """True where the candidate went to the simulation (whether or not the simulation succeeded)."""
-        return self.titration is not None or any(k in SIMULATION_FAILURES for k in self.kinds)
+        """True where the candidate went to the simulation (those that hit a missing constant or did not
+        converge included), False where the quick checks rejected it."""
+        return self.titration is not None or bool(set(self.kinds) & SIMULATION_FAILURES)
+
+    @property
+    def violation(self) -> float:
+        """How far from feasible: the sum of the graded constraint values (0 where feasible)."""
+        return float(sum(max(g, 0.0) for g in self.G))
 
     @property
     def standardised_error_percent(self) -> float | None:
@@ -73,6 +80,7 @@ class Evaluator:
         self.n_evaluations = 0
         self.n_simulated = 0
         self.n_prescreened = 0
+        self._memory: dict[tuple, float] = {}
 
     def evaluate(self, candidates: Sequence[Candidate]) -> list[Evaluation]:
         self.n_evaluations += len(candidates)
@@ -150,10 +158,14 @@ class Evaluator:
             v += ob.titration_violations(sc, c, t)
         margin = ob.selectivity_margin(sc, c, t) if t is not None else None
         std_err = t.standardised_error_percent if t is not None else None
+        mk = (c.titrant, c.indicator, tuple(a for a, _ in c.masking), c.mode, c.strategy.variant(c))
+        if mk not in self._memory:
+            self._memory[mk] = ob.memory_share(sc, c)
         facts = ob.Facts(candidate=c, titration=t, error_percent=std_err, margin=margin, sharpness_mL=sharp,
-                         hazard=ob.hazard_of(c, sc))
+                         hazard=ob.hazard_of(c, sc), memory_share=self._memory[mk])
         kinds = tuple(dict.fromkeys(kind for kind, _ in v))
         return Evaluation(candidate=c, error_percent=err, margin=margin, sharpness_mL=sharp, hazard=facts.hazard,
                           violations=tuple(dict.fromkeys(text for _, text in v)), titration=t,
                           F=tuple(ob.OBJECTIVES[k].value(facts) for k in sc.objectives),
-                          G=ob.constraint_values(kinds), kinds=kinds)
+                          G=ob.constraint_values(kinds, ob.violation_amounts(sc, c, t) if kinds else None), kinds=kinds,
+                          memory_share=facts.memory_share)

@@ -190,8 +190,7 @@ class Method:
     @property
     def strategy(self):
         """The :class:`optimiser.strategies.Strategy` that runs this method."""
-        from .strategies import strategy
-        return strategy(self.mode)
+        return _strategy(self.mode)
 
     def with_mode(self, mode: str) -> "Method":
         """The same conditions as a single titration run by the strategy ``mode`` (no stage, no co-analytes)."""
@@ -253,3 +252,10 @@ def titration_temperature_C(sample: Sample, indicator: Indicator) -> float:
     """The temperature a titration with ``indicator`` runs at [degC]: its working temperature, or the sample's."""
     T = indicator.working_temperature_C
     return sample.temperature_C if T is None else float(T)
+
+
+def _strategy(mode: str):
+    """The strategy registered under ``mode`` (imported on first use: the strategies import this module)."""
+    global _strategy
+    from .strategies import strategy as _strategy
+    return _strategy(mode)

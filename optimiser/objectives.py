@@ -8,6 +8,7 @@ inequality per group) and a short text for summaries. Adding an objective: one :
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
@@ -44,6 +45,7 @@ class Facts:
     margin: float | None
     sharpness_mL: float | None
     hazard: int
+    memory_share: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -62,6 +64,25 @@ def complexity_of(c: Candidate) -> float:
     titre: 1) and what the titrant adds (its data: fewer published methods and less certain constants than EDTA).
     Our own scale (common practice: simpler methods are preferred where they do the job)."""
     return len(c.masking) + c.strategy.complexity + catalogue().titrant(c.titrant).complexity
+
+
+def memory_share(scenario: Scenario, c: Candidate) -> float:
+    """Share (0-1) of a method's decisive constants that are from memory: each metal of the sample (and the
+    strategy's standard) with the titrant, the indicator with the metals it shows, each masking agent with the
+    metals of the sample. It adds to the bench complexity (a method that rests on remembered constants needs
+    checking before use; common practice: prefer the familiar)."""
+    from .constants import database
+
+    db = database()
+    metals = {db.metal(m) for m in (*scenario.sample.metals, *c.strategy.added_metals(c))}
+    used = [k for m in metals for k in db.complexes.get((m, c.titrant), ()) if len(k.stoichiometry) == 2]
+    shown = {db.metal(m) for m in scenario.sample.analyte} | {db.metal(c.strategy.complex_metal(c, scenario.sample))}
+    used += [k for m in shown for k in db.complexes.get((m, c.indicator), ()) if len(k.stoichiometry) == 2]
+    cat = catalogue()
+    for a, _ in c.masking:
+        lig = cat.masking_agent(a).ligand
+        used += [k for m in metals for k in db.complexes.get((m, lig), ())]
+    return sum(k.from_memory for k in used) / len(used) if used else 0.0
 
 
 def hazard_of(c: Candidate, scenario: Scenario | None = None) -> int:
@@ -91,7 +112,8 @@ OBJECTIVES: dict[str, Objective] = {o.name: o for o in (
     Objective("sharpness", "mL", "end-point sharpness (10-90 % turned)", "smaller is better",
               lambda f: min(f.sharpness_mL, SHARPNESS_CAP) if f.sharpness_mL is not None else SHARPNESS_CAP),
     Objective("hazard", "class 0-4", "reagent hazard", "smaller is better", lambda f: float(f.hazard)),
-    Objective("complexity", "steps", "bench complexity", "smaller is better", lambda f: complexity_of(f.candidate)),
+    Objective("complexity", "steps", "bench complexity", "smaller is better",
+              lambda f: complexity_of(f.candidate) + f.memory_share),
 )}
 
 # kind of violation -> (constraint group it counts against, short text for summaries)
@@ -204,10 +226,60 @@ def acceptance_violations(scenario: Scenario, t: Titration) -> list[tuple[str, s
     return out
 
 
-def constraint_values(kinds) -> tuple[float, ...]:
-    """One pymoo inequality per constraint group: +1 where any violation counts against it, else -1."""
-    groups = {VIOLATIONS[kind][0] for kind in kinds}
-    return tuple(1.0 if g in groups else -1.0 for g in CONSTRAINTS)
+def constraint_values(kinds, amounts: dict[str, float] | None = None) -> tuple[float, ...]:
+    """One pymoo inequality per constraint group: the sum of its violations' graded amounts (how far from
+    feasible, each at least :data:`MIN_AMOUNT`; 1 where no amount is given), 0 where none counts against it."""
+    out = dict.fromkeys(CONSTRAINTS, 0.0)
+    for kind in dict.fromkeys(kinds):
+        out[VIOLATIONS[kind][0]] += max(MIN_AMOUNT, (amounts or {}).get(kind, 1.0))
+    return tuple(out[g] for g in CONSTRAINTS)
+
+
+MIN_AMOUNT = 0.01  # the least a violation counts (a criterion just missed is still missed)
+UNMEASURED = 3.0  # what a violation without a measure of its distance counts (a missing end point, a block)
+
+
+def _log_ratio(value: float, limit: float) -> float:
+    """log10(value / limit): 0 at the limit, 1 at ten times it (0 where the value is 0)."""
+    return math.log10(value / limit) if value > 0 and limit > 0 else 0.0
+
+
+def violation_amounts(scenario: Scenario, c: Candidate, t: Titration | None) -> dict[str, float]:
+    """How far a candidate is from each criterion it fails: log10 of the measure over its limit (0.3 = twice as
+    much as allowed, 1 = ten times), pH units for the ranges, hazard classes for the hazard, :data:`UNMEASURED` where
+    nothing measures the distance (no end point, a blocked indicator): the graded constraint values the search
+    moves along."""
+    from .readout import DROP_mL
+
+    cat = catalogue()
+    target = scenario.targets.max_error_percent
+    ind = cat.indicator(c.indicator)
+    a: dict[str, float] = {k: UNMEASURED for k in VIOLATIONS}
+    a["indicator_pH"] = max(ind.usable_pH[0] - c.pH, c.pH - ind.usable_pH[1], 0.0)
+    lo, hi = cat.buffer(c.buffer).pH_range
+    a["buffer"] = max(lo - c.pH, c.pH - hi, 0.0)
+    a["masking_pH"] = max([cat.masking_agent(m).min_pH - c.pH for m, _ in c.masking] + [0.0])
+    a["hazard"] = float(hazard_of(c) - scenario.search.max_hazard)
+    if t is None:
+        return a
+    ratio = _log_ratio
+    err = t.error_percent
+    if err is not None:
+        a["error_far"] = ratio(abs(err), 10 * target)
+    parts = [abs(p) for p in t.standardised_budget.values()]
+    a["budget_part"] = ratio(max(parts, default=0.0), target)
+    a["analyte_unbound"] = ratio(-t.budget.get("analyte_unbound", 0.0), target)
+    a["cotitrated_share"] = ratio(max(t.cotitrated.values(), default=0.0), COTITRATED_SHARE_MAX)
+    if t.pH_drift is not None:
+        a["pH_drift"] = ratio(abs(t.pH_drift), PH_DRIFT_MAX)
+    if t.sharpness_mL is not None:
+        a["too_gradual"] = ratio(t.sharpness_mL, READABLE_DROPS * DROP_mL)
+    a["burette"] = ratio(t.titre_mL, scenario.burette_mL)
+    solid = max((t.speciation_start.get(m, {}).get("solid", 0.0) for m in scenario.sample.analyte), default=0.0)
+    a["analyte_solid"] = UNMEASURED * solid  # the share of the analyte precipitated
+    if t.endpoint_mL is None:  # how far the indicator is from turning: what is left to turn (less is nearer)
+        a["no_end_point"] = UNMEASURED
+    return a
 
 
 def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) -> float | None:
@@ -221,12 +293,13 @@ def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) ->
     """
     s = scenario.sample
     cond, alkali = side_reactions(s, t.method if t is not None else c.method(scenario))
-    ligands = c.ligand_totals()
+    ligands = tuple(sorted(c.ligand_totals().items()))
 
     def log_cK(metal: str, conc: float) -> float:
         if conc <= 0:
             return -math.inf
-        k = conditional_constant(metal, c.titrant, c.pH, ligands, cond, alkali).log_K_conditional
+        k = _log_K_conditional(metal, c.titrant, float(c.pH), ligands, float(cond.ionic_strength_M),
+                               float(cond.temperature_C), tuple(sorted(alkali.items())))
         return float(feasibility(k, conc))
 
     try:
@@ -247,6 +320,13 @@ def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) ->
 
 
 TABLE_IONIC_STRENGTH_M = 0.1  # where no method is chosen: the ionic strength of the handbook tables (common practice)
+
+
+@lru_cache(maxsize=50_000)
+def _log_K_conditional(metal: str, titrant: str, pH: float, ligands: tuple, I: float, T: float, alkali: tuple) -> float:
+    """log K' of a metal with a titrant at one pH, ligand totals, conditions and alkali ions (memoised: the candidates
+    of a search that differ only in their indicator or strategy share it)."""
+    return float(conditional_constant(metal, titrant, pH, dict(ligands), Conditions(I, T), dict(alkali)).log_K_conditional)
 
 
 def conditional_curves(scenario: Scenario, c: Candidate | None, pH: np.ndarray) -> dict[str, np.ndarray]:

@@ -278,11 +278,11 @@ def test_a_duplicate_reference_key_is_refused(edited):
 
 
 def test_a_new_indicator_is_simulated_by_the_search_with_no_code_change(edited):
-    """The search itself takes the new indicator: it is one of the problem's indicator choices, and a candidate that
+    """The search itself takes the new indicator: it is in the structures the search enumerates, and a candidate that
     uses it is simulated and reads like EBT's (the same constants under another name)."""
     from optimiser.candidate import Candidate
     from optimiser.evaluation import Evaluator
-    from optimiser.search import MethodProblem
+    from optimiser.structures import enumerate_structures
 
     _copy_of_EBT(edited)
     text = SCENARIO + ("interferents: {Mg: 0.3 mmol/L}\n"
@@ -291,7 +291,7 @@ def test_a_new_indicator_is_simulated_by_the_search_with_no_code_change(edited):
     sc = parse(text)
     assert "EBT_copy" in sc.search.indicators
     ev = Evaluator(sc)
-    assert "EBT_copy" in MethodProblem(sc, ev).vars["indicator"].options
+    assert "EBT_copy" in {st.indicator for st in enumerate_structures(sc)[0]}
     pair = ev.evaluate([Candidate(10.0, "ammonia", -1.0, "EDTA", (), ind, "direct", "Zn") for ind in ("EBT", "EBT_copy")])
     assert pair[1].titration is not None and pair[1].titration.method.indicator == "EBT_copy"
     assert pair[1].error_percent == pytest.approx(pair[0].error_percent, rel=1e-9)
