@@ -57,7 +57,7 @@ def test_search_statistics_account_for_every_structure(tiny):
     st = r.stats
     assert isinstance(st, SearchStats)
     d = st.as_dict()
-    assert d["structures_considered"] == 4 and d["structures_pruned"] == {structures.PH_RANGES: 2}
+    assert d["structures_considered"] == 4 and d["structures_pruned"] == [{"reason": structures.PH_RANGES, "count": 2}]
     assert st.structures_simulated == 2  # every structure the rules leave is simulated
     assert 1 <= st.structures_feasible <= st.structures_simulated
     assert st.candidates_simulated >= st.structures_simulated
