@@ -379,7 +379,6 @@ def composite_steps(scenario, method, t, steps: list[Step], between=None) -> lis
     from ..procedure import standardisation_step
 
     V0, cT = scenario.sample.volume_mL, method.titrant_conc_M
-    sample = scenario.sample
     steps_t = t.steps or (t,)
     out = [standardisation_step(scenario, steps[0].method, steps_t[0])]
     flask = 0
@@ -418,4 +417,27 @@ def composite_steps(scenario, method, t, steps: list[Step], between=None) -> lis
     return out
 
 
-__all__ = ["CompositeStrategy", "composite_steps", "stage_prescreen", "needs_another_titration", "Step", "combine", "step_text", "stage_genes", "stage_fields", "co_analyte_options"]
+
+
+class StagedStrategy(CompositeStrategy):
+    """A composite strategy with one other titration (a ``stage``: the first step in the same aliquot, or a second
+    aliquot), searched where the scenario names several analytes: its genes are the stage's pH, buffer, indicator
+    and what it determines (:func:`stage_genes`)."""
+
+    def applies(self, sample, search) -> bool:
+        return needs_another_titration(sample, search)
+
+    def applies_when_asked(self, sample, search) -> bool:
+        return needs_another_titration(sample, search) or interferent_binds_more(sample, search)
+
+    def genes(self, sample, search) -> dict[str, tuple]:
+        return stage_genes(sample, search)
+
+    def method_fields(self, extra, sample, search, base) -> dict:
+        return stage_fields(extra, base, search)
+
+    def prescreen(self, candidate, scenario) -> list[tuple[str, str]]:
+        return stage_prescreen(candidate, scenario)
+
+
+__all__ = ["CompositeStrategy", "StagedStrategy", "composite_steps", "stage_prescreen", "needs_another_titration", "Step", "combine", "step_text", "stage_genes", "stage_fields", "co_analyte_options"]

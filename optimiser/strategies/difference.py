@@ -14,10 +14,10 @@ from __future__ import annotations
 
 from ..errors import InputError
 from ..method import Sample
-from .composite import CompositeStrategy, _candidate_text, Step, interferent_binds_more, needs_another_titration, stage_fields, stage_genes, stage_prescreen, step_text
+from .composite import StagedStrategy, Step, _candidate_text, step_text
 
 
-class DifferenceDetermination(CompositeStrategy):
+class DifferenceDetermination(StagedStrategy):
     """``method`` titrates the analyte with ``method.co_analytes`` in one aliquot; ``method.stage`` the co-analytes
     alone in a second; the analyte is the difference."""
 
@@ -33,21 +33,6 @@ class DifferenceDetermination(CompositeStrategy):
                              "metals it determines (co_analytes)")
         if method.stage.strategy.composite:
             raise InputError("each aliquot of a determination by difference is a single titration")
-
-    def applies(self, sample, search) -> bool:
-        return needs_another_titration(sample, search)
-
-    def applies_when_asked(self, sample, search) -> bool:
-        return needs_another_titration(sample, search) or interferent_binds_more(sample, search)
-
-    def genes(self, sample, search) -> dict[str, tuple]:
-        return stage_genes(sample, search)
-
-    def method_fields(self, extra, sample, search, base) -> dict:
-        return stage_fields(extra, base, search)
-
-    def prescreen(self, candidate, scenario) -> list[tuple[str, str]]:
-        return stage_prescreen(candidate, scenario)
 
     def steps(self, sample: Sample, method) -> list[Step]:
         both = tuple(dict.fromkeys((*sample.analyte, *method.co_analytes)))

@@ -13,7 +13,8 @@ import numpy as np
 
 from .. import findings as fd
 from ..errors import InputError
-from .base import Array, Plan, Strategy, budget_parts, indicator_bound
+from .base import Array, Plan, budget_parts
+from .direct import DirectTitration
 
 # metal -> the complex added and its usual concentration in the aliquot [mol/L], with its source.
 COMPLEXES: dict[str, dict] = {
@@ -31,7 +32,7 @@ COMPLEXES: dict[str, dict] = {
 }
 
 
-class DisplacementTitration(Strategy):
+class DisplacementTitration(DirectTitration):  # read and judged as a direct titration
     """Direct titration with a metal-titrant complex of ``method.back_metal`` added to the sample first.
 
     error = (V_ep - V_eq) / V_eq * 100 % (the added complex brings equal amounts of metal and titrant).
@@ -94,15 +95,6 @@ class DisplacementTitration(Strategy):
                                            origin=COMPLEXES[method.back_metal]["source"]))
         if plan.slow:
             plan.findings.append(fd.warning("slow_direct", metals=list(plan.slow), titrant=method.titrant))
-
-    def reference(self, plan: Plan, eq) -> float:
-        return float(indicator_bound(plan.method, eq, plan.metals)[0])
-
-    def turned(self, plan: Plan, eq, ref: float) -> Array:
-        return (ref - indicator_bound(plan.method, eq, plan.metals)) / max(ref, 1e-300)
-
-    def error_percent(self, plan: Plan, V_ep: float) -> float:
-        return (V_ep - plan.V_eq) / plan.V_eq * 100.0
 
     def budget(self, plan: Plan, eq, point: int, V_ep: float) -> dict[str, float]:
         V_total = plan.V_start + V_ep

@@ -10,10 +10,10 @@ from __future__ import annotations
 
 from ..errors import InputError
 from ..method import Sample
-from .composite import CompositeStrategy, _candidate_text, Step, interferent_binds_more, needs_another_titration, stage_fields, stage_genes, stage_prescreen, step_text
+from .composite import StagedStrategy, Step, _candidate_text, step_text
 
 
-class SequentialTitration(CompositeStrategy):
+class SequentialTitration(StagedStrategy):
     """``method.stage`` titrates ``method.co_analytes``, then ``method`` the analyte, in one aliquot (lower pH first)."""
 
     id = "sequential"
@@ -28,21 +28,6 @@ class SequentialTitration(CompositeStrategy):
                              "determines (co_analytes)")
         if method.stage.strategy.composite or method.stage.mode != "direct":
             raise InputError("each step of a sequential titration must be a direct titration")
-
-    def applies(self, sample, search) -> bool:
-        return needs_another_titration(sample, search)
-
-    def applies_when_asked(self, sample, search) -> bool:
-        return needs_another_titration(sample, search) or interferent_binds_more(sample, search)
-
-    def genes(self, sample, search) -> dict[str, tuple]:
-        return stage_genes(sample, search)
-
-    def method_fields(self, extra, sample, search, base) -> dict:
-        return stage_fields(extra, base, search)
-
-    def prescreen(self, candidate, scenario) -> list[tuple[str, str]]:
-        return stage_prescreen(candidate, scenario)
 
     def steps(self, sample: Sample, method) -> list[Step]:
         first = Sample(sample.volume_mL, sample.metals, method.co_analytes, sample.ionic_strength_M,
