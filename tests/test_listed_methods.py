@@ -248,6 +248,7 @@ sample: {volume: 50 mL}
 analyte: {metals: {Ca: 0.5 mol/L}}
 interferents: {Cu: 0.1 mmol/L}
 titrant: {concentration: 0.01 M, burette: 25 mL}
+search: {titrants: [EDTA], buffers: [ammonia], indicators: [EBT, calmagite], max_masking_agents: 0}
 methods:
   - {name: with cyanide, pH: 10, titrant: EDTA, buffer: ammonia, indicator: EBT, masking: {KCN: 1 mM}}
 """, "x.yaml")
