@@ -233,15 +233,13 @@ class _Writer:
         self.rows.append(StockSolution(row.role, label, row.per_litre, row.shelf_life, row.hazards, row.source))
 
 
-_STEP_WRITERS: list[_Writer] = []  # the writers of a composite strategy's steps while one written method is made
-
-
-def step_writer(scenario: Scenario, method: Method, t: Titration) -> _Writer:
-    """A writer for one step of a multi-step strategy (:func:`optimiser.strategies.composite.composite_steps`): its
-    additions and stock solutions are gathered into the written method being made."""
+def step_writer(scenario: Scenario, method: Method, t: Titration, writers: list | None = None) -> _Writer:
+    """A writer for one step of a multi-step strategy (:func:`optimiser.strategies.composite.composite_steps`),
+    appended to ``writers`` where given, so that its additions and stock solutions join the written method."""
     w = _Writer(scenario, method, t)
     w.adds.clear()
-    _STEP_WRITERS.append(w)
+    if writers is not None:
+        writers.append(w)
     return w
 
 
@@ -301,16 +299,14 @@ def written_method(scenario: Scenario, method: Method, t: Titration, formula: st
                  "and titrate it to the same colour (Vb, common practice).")
     steps.append("Titrate a second aliquot of the sample (duplicate) and calculate as below.")
     standardisation = w.standardisation(titrant)
-    _STEP_WRITERS.clear()
-    own = method.strategy.bench_steps(scenario, method, t)  # a multi-step strategy writes its own steps
+    writers: list[_Writer] = []
+    own = method.strategy.bench_steps(scenario, method, t, writers)  # a multi-step strategy writes its own steps
     if own is not None:
-        # the temperature first; the strategy's own first step is the standardisation, written above already
-        steps = steps[:1] + list(own[1:])
+        steps = steps[:1] + list(own)  # the temperature first
         seen = {r.name for r in w.rows}
-        for wk in _STEP_WRITERS:
+        for wk in writers:
             w.rows += [r for r in wk.rows if r.name not in seen and not seen.add(r.name)]
             w.adds += wk.adds
-    _STEP_WRITERS.clear()
     target = scenario.targets.max_error_percent
     calculation = _calculation(scenario, method, V_x, formula)
     qc = (f"Reagent blank with every batch (step {len(steps) - 1}); a blank titre that grows from batch to batch points to "

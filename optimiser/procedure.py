@@ -181,13 +181,6 @@ def strategy_text(method: Method) -> str:
     return f"{s.label} with {s.variant(method)}" if s.uses_standard else s.label
 
 
-def standardisation_step(scenario: Scenario, method: Method, t: Titration) -> str:
-    """How the titrant is standardised, in one paragraph (the written method's standardisation,
-    :func:`optimiser.bench_steps.written_method`), for strategies that write their own steps."""
-    from .bench_steps import written_method
-    return " ".join(written_method(scenario, method, t, "").standardisation)
-
-
 @dataclass(frozen=True)
 class BenchMethod:
     """The recommended method as an analyst runs it, with its figures of merit (plain data for any report format).

@@ -261,8 +261,9 @@ class Strategy:
         an end point per step (and per result); single titrations are simulated by :mod:`optimiser.titration`."""
         raise NotImplementedError
 
-    def bench_steps(self, scenario: Any, method: Any, t: Any) -> list[str] | None:
-        """The numbered bench steps of a composite strategy (None: the single titration's procedure)."""
+    def bench_steps(self, scenario: Any, method: Any, t: Any, writers: list | None = None) -> list[str] | None:
+        """The numbered bench steps of a composite strategy after the standardisation (None: the single titration's
+        procedure); the writers of its steps' additions are appended to ``writers`` where given."""
         return None
 
     def result_formula(self, scenario: Any, method: Any) -> str | None:

@@ -369,18 +369,19 @@ def _formulas(read: list[str], derived: list[str], cT: float, V0: float) -> list
     return out
 
 
-def composite_steps(scenario, method, t, steps: list[Step], between=None) -> list[str]:
-    """The numbered bench steps of a multi-step strategy: the titrant's standardisation, then each step (a new flask
+def composite_steps(scenario, method, t, steps: list[Step], between=None, writers: list | None = None) -> list[str]:
+    """The numbered bench steps of a multi-step strategy: each step (a new flask
     where the step starts a new aliquot; ``between(k, step)`` says what is added before a step that continues in the
     same solution, or before the first titration where that step needs a reagent first), each titration with its
-    own colour change and predicted reading, and how each result is calculated."""
+    own colour change and predicted reading, and how each result is calculated. The standardisation is the written
+    method's (:func:`optimiser.bench_steps.written_method`); each step's additions are written from stock solutions by
+    a writer of its own, appended to ``writers`` where given (their stocks join the method's)."""
     from ..bench_steps import step_writer
     from ..quantities import number
-    from ..procedure import standardisation_step
 
     V0, cT = scenario.sample.volume_mL, method.titrant_conc_M
     steps_t = t.steps or (t,)
-    out = [standardisation_step(scenario, steps[0].method, steps_t[0])]
+    out: list[str] = []
     flask = 0
     for k, (st, tk) in enumerate(zip(steps, steps_t)):
         m = st.method
@@ -388,7 +389,7 @@ def composite_steps(scenario, method, t, steps: list[Step], between=None) -> lis
         if new:
             flask += 1
             out.append(f"Pipette {V0:g} mL of sample into titration flask {flask}.")
-            wk = step_writer(scenario, m, tk)  # stock-solution additions, as the single titration's procedure
+            wk = step_writer(scenario, m, tk, writers)  # stock-solution additions, as the single titration's procedure
             out += wk.masking_steps(after_buffer=False)
         if between is not None and (not new or st.removed_mmol):
             text = between(k, st)
@@ -398,9 +399,9 @@ def composite_steps(scenario, method, t, steps: list[Step], between=None) -> lis
             out.append(f"Add about 90 % of the expected titrant ({0.9 * tk.endpoint_mL:.1f} mL) before raising the pH, "
                        f"so that {', '.join(tk.precipitates_start)} does not carry down the analyte (common practice).")
         if new or m.buffer != steps[k - 1].method.buffer or m.pH != steps[k - 1].method.pH:
-            out.append(step_writer(scenario, m, tk).buffer_step())
+            out.append(step_writer(scenario, m, tk, writers).buffer_step())
             if new:
-                out += step_writer(scenario, m, tk).masking_steps(after_buffer=True)
+                out += step_writer(scenario, m, tk, writers).masking_steps(after_buffer=True)
         ep = t.endpoints[k]
         colour = f"from {ep.colour_change[0]} to {ep.colour_change[1]}"
         reading = "-" if ep.volume_mL is None else f"titre about {number(ep.volume_mL, 2)} mL"

@@ -180,7 +180,7 @@ class DemaskingTitration(CompositeStrategy):
         return {"mode": self.id, "back_metal": None, "co_analytes": list(method.co_analytes),
                 "demasking_agent": did, "demasking_conc_M": c}
 
-    def bench_steps(self, scenario, method, t) -> list[str] | None:
+    def bench_steps(self, scenario, method, t, writers=None) -> list[str] | None:
         from .composite import composite_steps
 
         did, d, c = self.dose(method, scenario.sample)
@@ -189,7 +189,7 @@ class DemaskingTitration(CompositeStrategy):
         def between(k, step) -> str:
             return (f"Add {c * V0 / d['molarity_M']:.2g} mL of {d['name']} ({c * V0:.2g} mmol, in the cold, in a fume hood); "
                     f"it releases {', '.join(step.sample.analyte)} (the solution turns back to the complex colour)")
-        return composite_steps(scenario, method, t, self.steps(scenario.sample, method), between=between)
+        return composite_steps(scenario, method, t, self.steps(scenario.sample, method), between=between, writers=writers)
 
 
 __all__ = ["DemaskingTitration", "DEMASKERS"]

@@ -73,10 +73,10 @@ class DifferenceDetermination(StagedStrategy):
         return (f"by difference: analyte + {'+'.join(method.co_analytes)} at pH {method.pH:.2f}, "
                 f"{'+'.join(method.co_analytes)} at pH {method.stage.pH:.2f}")
 
-    def bench_steps(self, scenario, method, t) -> list[str] | None:
+    def bench_steps(self, scenario, method, t, writers=None) -> list[str] | None:
         from .composite import composite_steps
 
-        return composite_steps(scenario, method, t, self.steps(scenario.sample, method), between=None)
+        return composite_steps(scenario, method, t, self.steps(scenario.sample, method), between=None, writers=writers)
 
 
 __all__ = ["DifferenceDetermination"]

@@ -47,10 +47,10 @@ class SequentialTitration(StagedStrategy):
         return (f"sequential: {'+'.join(method.co_analytes)} at pH {method.stage.pH:.2f}, then the analyte at "
                 f"pH {method.pH:.2f}")
 
-    def bench_steps(self, scenario, method, t) -> list[str] | None:
+    def bench_steps(self, scenario, method, t, writers=None) -> list[str] | None:
         from .composite import composite_steps
 
-        return composite_steps(scenario, method, t, self.steps(scenario.sample, method), between=self._between)
+        return composite_steps(scenario, method, t, self.steps(scenario.sample, method), between=self._between, writers=writers)
 
     @staticmethod
     def _between(k, step) -> str:
