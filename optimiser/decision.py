@@ -50,6 +50,10 @@ def pareto(evals: Sequence[Evaluation], dedupe: bool = True) -> list[Evaluation]
     return out
 
 
+BURETTE_READING_mL = 0.02  # a burette is read to about 0.02 mL (common practice): a colour change slower by less
+#                            than that (and 5 %) is not seen as slower
+
+
 def _no_worse(simpler: Evaluation, e: Evaluation, needed_margin: float | None = None) -> bool:
     """True when a method without some masking agent does the job as well (small tolerances, our own): no less
     feasible, no larger error, no slower colour change, and a selectivity margin no smaller, or already at least
@@ -63,7 +67,8 @@ def _no_worse(simpler: Evaluation, e: Evaluation, needed_margin: float | None = 
         return a is None and b is None
     if abs(a) > abs(b) + 0.05:
         return False
-    if simpler.sharpness_mL is not None and e.sharpness_mL is not None and simpler.sharpness_mL > 1.05 * e.sharpness_mL + 0.005:
+    if (simpler.sharpness_mL is not None and e.sharpness_mL is not None
+            and simpler.sharpness_mL > 1.05 * e.sharpness_mL + BURETTE_READING_mL):
         return False
     if simpler.margin is not None and (needed_margin is None or simpler.margin < needed_margin):
         if e.margin is None and simpler.margin < 6.0:  # 6: about 0.1 % (Ringbom; textbook threshold)

@@ -157,11 +157,11 @@ class Evaluator:
             err, sharp = t.error_percent, t.sharpness_mL
             v += ob.titration_violations(sc, c, t)
         margin = ob.selectivity_margin(sc, c, t) if t is not None else None
-        std_err = t.standardised_error_percent if t is not None else None
+        by_cause = t.error_by_cause_percent if t is not None else None
         mk = (c.titrant, c.indicator, tuple(a for a, _ in c.masking), c.mode, c.strategy.variant(c))
         if mk not in self._memory:
             self._memory[mk] = ob.memory_share(sc, c)
-        facts = ob.Facts(candidate=c, titration=t, error_percent=std_err, margin=margin, sharpness_mL=sharp,
+        facts = ob.Facts(candidate=c, titration=t, error_percent=by_cause, margin=margin, sharpness_mL=sharp,
                          hazard=ob.hazard_of(c, sc), memory_share=self._memory[mk])
         kinds = tuple(dict.fromkeys(kind for kind, _ in v))
         return Evaluation(candidate=c, error_percent=err, margin=margin, sharpness_mL=sharp, hazard=facts.hazard,

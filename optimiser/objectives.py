@@ -41,7 +41,7 @@ class Facts:
 
     candidate: Candidate
     titration: Titration | None
-    error_percent: float | None
+    error_percent: float | None  # after standardisation, its causes added by magnitude (Titration.error_by_cause_percent)
     margin: float | None
     sharpness_mL: float | None
     hazard: int
@@ -106,7 +106,7 @@ def _selectivity(f: Facts) -> float:
 
 
 OBJECTIVES: dict[str, Objective] = {o.name: o for o in (
-    Objective("error", "%", "|titration error| after standardisation", "smaller is better",
+    Objective("error", "%", "titration error after standardisation, its causes added by magnitude", "smaller is better",
               lambda f: min(abs(f.error_percent), ERROR_CAP) if f.error_percent is not None else ERROR_CAP),
     Objective("selectivity", "log units", "-selectivity margin", "larger margin is better", _selectivity),
     Objective("sharpness", "mL", "end-point sharpness (10-90 % turned)", "smaller is better",

@@ -30,7 +30,7 @@ from pymoo.core.mixed import MixedVariableGA
 from pymoo.core.population import Population
 from pymoo.core.problem import Problem
 from pymoo.core.variable import Choice, Real
-from pymoo.optimize import minimize
+from pymoo.indicators.hv import HV
 
 from . import decision
 from .candidate import Candidate, buffers_for
@@ -52,10 +52,12 @@ REFINE_STRUCTURES = 10  # feasible structures whose continuous parts are refined
 REFINE_NEAR = 6  # and the infeasible structures nearest to feasibility (at least this many where few are feasible)
 NEAR = 1.0  # ... whose graded violation is at most this (a criterion missed by its own limit at most)
 PH_STEP = 0.5  # the refinement's first pH scan over a structure's range
-PATTERN_STRUCTURES = 5  # leaders refined further by a pattern search
+PATTERN_STRUCTURES = 5  # feasible leaders refined further by a pattern search
 PATTERN_STEPS = (0.2, 0.1, 0.05)  # its steps (pH units, log units of the buffer total, positions of the doses)
 PATTERN_MOVES = 3  # moves at most per step
 DOSE_POSITIONS = (0.0, 0.25, 0.5, 0.75, 1.0)  # masking doses tried, as positions in each agent's log range
+POLISH_MIN_GAIN = 0.005  # the polishing stops after a generation that adds less than this share to the hypervolume of
+#                          the front (its offspring found little the enumeration and refinement had not; our own rule)
 PAIR_PRUNED = "a pair of masking agents where either agent alone does nothing the method without it does not (survey)"
 
 __all__ = ["Candidate", "Evaluation", "Evaluator", "MethodProblem", "SearchResult", "Alternative", "run_search",
@@ -291,7 +293,8 @@ def _refine_structures(scenario: Scenario, ev: Evaluator, leaders: Sequence[Stru
                        surveyed: dict[tuple, Evaluation]) -> None:
     """The continuous parts of each leader: a pH scan over its range (at the survey's buffer total and at the
     largest), the masking doses and the buffer total at its best pH, then a pattern search (pH, buffer total, doses;
-    the steps halved twice) from the best point of the first :data:`PATTERN_STRUCTURES` leaders. All structures go
+    the steps halved twice) from the best point of the first :data:`PATTERN_STRUCTURES` leaders feasible after the
+    scans (where none is, the first leaders). All structures go
     in one batch per step."""
     best = {s.key: surveyed[s.key] for s in leaders}
     scan = []
@@ -314,7 +317,8 @@ def _refine_structures(scenario: Scenario, ev: Evaluator, leaders: Sequence[Stru
         if catalogue().buffer(s.buffer).ligand:
             doses += [s.candidate(c.pH, lb, tuple(x for _, x in c.masking)) for lb in BUFFER_LOG_RANGE]
     _update(scenario, best, ev.evaluate(doses))
-    top = leaders[:PATTERN_STRUCTURES]
+    # the pattern search refines the leaders that are feasible after the scans (where none is, the nearest)
+    top = [s for s in leaders if best[s.key].feasible][:PATTERN_STRUCTURES] or leaders[:PATTERN_STRUCTURES]
     for step in PATTERN_STEPS:
         for _ in range(PATTERN_MOVES):
             before = {s.key: best[s.key].candidate.key() for s in top}
@@ -375,8 +379,34 @@ def _polish(scenario: Scenario, ev: Evaluator, leaders: Sequence[Structure], see
         seeds.append(x)
     pop = Population.create(*[Individual(X=x) for x in seeds])
     algo = MixedVariableGA(pop_size=pop_size, sampling=pop, survival=RankAndCrowding(crowding_func="cd"))
-    res = minimize(problem, algo, ("n_gen", n_gen), seed=seed, verbose=False)
-    return int(res.algorithm.n_gen)
+    algo.setup(problem, termination=("n_gen", n_gen), seed=seed, verbose=False)
+    scale = _FrontScale(ev)
+    last = scale.hypervolume(ev)
+    while algo.has_next():
+        algo.next()
+        now = scale.hypervolume(ev)
+        if algo.n_gen >= 2 and now - last <= POLISH_MIN_GAIN * max(last, 1e-12):
+            break
+        last = now
+    return max(int(algo.n_gen or 1) - 1, 0)
+
+
+class _FrontScale:
+    """The hypervolume of the feasible front of everything evaluated, on the objectives scaled to 0-1 over what was
+    known when the polishing began (reference point 1.1 on each): the polishing's measure of progress."""
+
+    def __init__(self, ev: Evaluator):
+        F = np.array([e.F for e in ev.cache.values() if e.feasible] or [e.F for e in ev.cache.values()], dtype=float)
+        self.lo, hi = F.min(axis=0), F.max(axis=0)
+        self.span = np.where(hi > self.lo, hi - self.lo, 1.0)
+        self.indicator = HV(ref_point=np.full(F.shape[1], 1.1))
+
+    def hypervolume(self, ev: Evaluator) -> float:
+        F = np.array([e.F for e in ev.cache.values() if e.feasible], dtype=float)
+        if not len(F):
+            return 0.0
+        X = (F - self.lo) / self.span
+        return float(self.indicator(X[np.all(X < 1.1, axis=1)])) if np.any(np.all(X < 1.1, axis=1)) else 0.0
 
 
 def _stats(ev: Evaluator, considered: int, pruned: tuple[tuple[str, int], ...]) -> SearchStats:

@@ -39,9 +39,21 @@ TITRANT_PROTONS = 2  # titrant added as the disodium salt Na2H2Y (common practic
 # 1.5e-5 relative (6e-6 log units) of the solver's default 1e-8 (measured on hardness curves at pH 5, 10 and 12.5),
 # and the search then needs 5 % more Newton iterations than at a fixed ionic strength instead of 50 % more.
 CURVE_I_TOL = 1e-5
+# The end-point region is solved again, finer, while its step exceeds this share of the titre, for at most
+# FINER_ROUNDS rounds (each about n_points / 4 times finer). Measured: with 0.2 % the end point of a 41-point curve is
+# within 0.003 % of the titre of a 641-point one (sulfosalicylic acid with iron, xylenol orange with zinc, EBT with
+# magnesium); with 1 % it was off by up to 0.3 %, and by 1 % on the cement digest example (iron beside much calcium).
+FINER_STEP = 0.002
+FINER_ROUNDS = 3
 
 __all__ = ["Sample", "Method", "Prepared", "prepare", "EndPoint", "Titration", "simulate", "simulate_many", "DROP_mL",
            "GRADUAL_DROPS", "Carry"]
+
+
+# the parts of an error budget that together make one end point's offset from its equivalence point (read by the
+# same colour change, so their signs belong together); every other part is a cause of its own
+END_POINT_PARTS = frozenset({"titrant_unbound", "indicator_blank", "analyte_unbound", "standard_unbound",
+                             "added_complex"})
 
 
 @dataclass(frozen=True)
@@ -201,6 +213,27 @@ class Titration:
         scale = 1 + std.error_percent / 100
         keys = list(dict.fromkeys([*self.budget, *std.budget]))
         return {k: (self.budget.get(k, 0.0) - std.budget.get(k, 0.0)) / scale for k in keys}
+
+    @property
+    def error_by_cause_percent(self) -> float | None:
+        """The error after standardisation with its causes added by magnitude, so that opposite biases do not cancel
+        [%]: the end point's own offset (the parts in :data:`END_POINT_PARTS`, one reading of the indicator, taken
+        together with their signs), plus each other part (an interferent co-titrated, titrant carried over from an
+        earlier step) by its magnitude; a multi-step strategy's steps each have their own end point. The magnitude of
+        the net error where no budget was computed."""
+        std = self.standardised_budget
+        if not std:
+            e = self.standardised_error_percent
+            return None if e is None else abs(e)
+        offsets: dict[str, float] = {}
+        others = 0.0
+        for key, part in std.items():
+            step, _, cause = key.rpartition(": ")
+            if cause in END_POINT_PARTS:
+                offsets[step] = offsets.get(step, 0.0) + part
+            else:
+                others += abs(part)
+        return others + sum(abs(v) for v in offsets.values())
 
     @property
     def largest_part(self) -> tuple[str, float] | None:
@@ -396,6 +429,25 @@ def _fine_grid(p: Plan, eq: Equilibrium, ref: float) -> Array | None:
     return np.linspace(max(0.0, x - 4 * step), min(p.V_hi * 1.2, x + 4 * step), p.n_points)
 
 
+def _finer_grid(p: Plan, grid: Array | None, eqf: Equilibrium | None, ref: float) -> Array | None:
+    """Points within two steps of the end point read on the refined grid, where that grid's step there is more than
+    :data:`FINER_STEP` of the titre (None where it is not, or where no end point is read).
+
+    The coarse curve spans every metal that binds the titrant; where the analyte is a small part of them (iron
+    beside much calcium) the first refined region is still too coarse to read an end point or its colour change."""
+    if grid is None or eqf is None:
+        return None
+    x = readout.turned_crossing(p.method, grid, p.method.strategy.turned(p, eqf, ref), readout.read_levels(p.method, ref)[0])
+    if x is None or x <= 0:
+        return None
+    i = int(np.clip(np.searchsorted(grid, x), 1, len(grid) - 1))
+    h = grid[i] - grid[i - 1]
+    if h <= FINER_STEP * x:
+        return None
+    g = np.linspace(max(grid[0], x - 2 * h), min(grid[-1], x + 2 * h), p.n_points)
+    return g[np.min(np.abs(g[:, None] - grid[None, :]), axis=1) > 1e-9 * max(x, 1.0)]
+
+
 def standard_sample(sample: Sample) -> Sample:
     """The primary standard the titrant is standardised against: the analyte alone, at the sample's concentrations,
     volume, ionic strength and temperature (titrated by the same method, with the same indicator dose)."""
@@ -484,6 +536,15 @@ def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
     refs = [p.method.strategy.reference(p, eq) for p, eq in zip(live, coarse)]
     fine_grids = [_fine_grid(p, eq, ref) for p, eq, ref in zip(live, coarse, refs)]
     fine = _solve_batch(live, fine_grids, coarse)
+    for _ in range(FINER_ROUNDS):  # where the region is still coarse against the titre, once more around the end point
+        finer = [_finer_grid(p, g, eqf, ref) for p, g, eqf, ref in zip(live, fine_grids, fine, refs)]
+        if all(g is None for g in finer):
+            break
+        for k, eq2 in enumerate(_solve_batch(live, finer, coarse)):
+            if eq2 is not None:
+                both = np.concatenate([fine_grids[k], finer[k]])
+                order = np.argsort(both, kind="stable")
+                fine_grids[k], fine[k] = both[order], _merge(fine[k], eq2, order)
     V_eps = []
     for p, eqf, grid, ref in zip(live, fine, fine_grids, refs):
         level = readout.read_levels(p.method, ref)[0]

@@ -81,7 +81,7 @@ def conditional_figure(analysis: Analysis) -> str:
 def pareto_figure(analysis: Analysis) -> str:
     result = analysis.result
     objs = list(result.objectives)
-    labels = {"error": "|error| / %", "selectivity": "-(selectivity margin) / log units", "sharpness": "sharpness / mL",
+    labels = {"error": "error by cause / %", "selectivity": "-(selectivity margin) / log units", "sharpness": "sharpness / mL",
               "hazard": "hazard level (0-4)", "complexity": "bench complexity"}
     F = np.array([a.evaluation.F for a in result.front]) if result.front else np.zeros((0, len(objs)))
     pairs = [(objs[0], o) for o in objs[1:]] if len(objs) > 1 else [(objs[0], objs[0])]
