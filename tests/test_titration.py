@@ -139,3 +139,34 @@ def test_a_method_that_masks_the_analyte_itself_is_refused():
     with pytest.raises(InapplicableMethodError, match="leaves no Cu"):
         simulate(Sample(25, {"Cu": 0.002}, ("Cu",)),
                  Method(10.0, "ammonia", "EDTA", 0.01, "EBT", masking=(("thiosulfate", 0.05),), mode="back", back_metal="Mg"))
+
+
+# The search reads 41-point curves; the recommendation 161 points. Where the analyte is a small part of the metals
+# that bind the titrant (iron beside much calcium in a cement digest: the curve spans the calcium too), the end point
+# must still be read as on a fine curve (a convergence check of our own reading against the same model).
+@pytest.mark.parametrize("name,sample,method", [
+    ("iron beside calcium and aluminium", Sample(50, {"Fe(III)": 7e-4, "Al": 1.8e-3, "Ca": 2.2e-2}, ("Fe(III)",), acid_M=0.05),
+     Method(3.0, "nitric_acid", "EDTA", 0.01, "sulfosalicylic_acid")),
+    ("iron alone", Sample(50, {"Fe(III)": 7e-4}, ("Fe(III)",)), Method(2.0, "nitric_acid", "EDTA", 0.01, "sulfosalicylic_acid")),
+    ("zinc alone", Sample(25, {"Zn": 2e-3}, ("Zn",)), Method(5.5, "hexamine", "EDTA", 0.01, "xylenol_orange")),
+])
+def test_a_coarse_curve_reads_the_end_point_of_a_fine_one(name, sample, method):
+    coarse, fine = simulate(sample, method, n_points=41), simulate(sample, method, n_points=641)
+    assert abs(coarse.endpoint_mL - fine.endpoint_mL) <= 1e-4 * fine.endpoint_mL
+    assert coarse.error_percent == pytest.approx(fine.error_percent, abs=0.01)
+    assert coarse.sharpness_mL == pytest.approx(fine.sharpness_mL, rel=0.05)
+
+
+def test_opposite_biases_do_not_cancel_in_the_error_by_cause():
+    """A co-titrated interferent (+) and an early end point (-) of the same size: the net error is about 0, the error
+    by cause twice the part (the guide's rule: the error is shown by cause, never as one figure in which opposite
+    biases cancel). The end point's own parts keep their signs together (one colour change)."""
+    from dataclasses import replace
+    t = simulate(Sample(25, {"Zn": 2e-3}, ("Zn",)), Method(5.5, "hexamine", "EDTA", 0.01, "xylenol_orange"))
+    parts = {"cotitration:Cu": 0.4, "titrant_unbound": 0.1, "analyte_unbound": -0.3, "indicator_blank": -0.2}
+    t2 = replace(t, endpoints=(replace(t.endpoints[0], standardised_percent=0.0, standardised_parts=parts),))
+    assert t2.standardised_error_percent == 0.0
+    assert t2.error_by_cause_percent == pytest.approx(0.4 + 0.4)
+    steps = {"step 1: cotitration:Cu": -0.3, "step 1: titrant_unbound": 0.2, "step 2: titrant_unbound": -0.2}
+    t3 = replace(t, endpoints=(replace(t.endpoints[0], standardised_parts=steps),))
+    assert t3.error_by_cause_percent == pytest.approx(0.3 + 0.2 + 0.2)
