@@ -104,8 +104,15 @@ def buffer_forms(buffer: Buffer, total_M: float, pH: float, ionic_strength_M: fl
     protonation fractions at the ionic strength and temperature, times its total); empty without a ligand."""
     if not buffer.ligand or total_M <= 0:
         return np.zeros(0)
-    cond = Conditions(min(ionic_strength_M, IONIC_STRENGTH_MAX_M), temperature_C)
-    return total_M * np.asarray(ligand_fractions(buffer.ligand, pH, cond), dtype=float)
+    return total_M * np.array(_fractions(buffer.ligand, float(pH), min(float(ionic_strength_M), IONIC_STRENGTH_MAX_M),
+                                         float(temperature_C)))
+
+
+@lru_cache(maxsize=65536)
+def _fractions(ligand: str, pH: float, ionic_strength_M: float, temperature_C: float) -> tuple[float, ...]:
+    """A ligand's unbound protonation fractions (remembered: a search asks for the same few thousand many times)."""
+    return tuple(float(x) for x in np.asarray(ligand_fractions(ligand, pH, Conditions(ionic_strength_M, temperature_C)),
+                                              dtype=float).reshape(-1))
 
 
 def free_hydroxide_M(pH: float, ionic_strength_M: float, temperature_C: float) -> float:

@@ -5,7 +5,7 @@
 2. **Survey**: simulate every structure left once, at the pH where Ringbom's model favours it
    (:mod:`optimiser.survey`); those that just miss feasibility get a second look at the middle and the far side of
    their range. A pair of masking agents is surveyed where each agent alone does something the method without it
-   does not.
+   does not and both are among the :data:`PAIR_AGENTS` that do most alone.
 3. **Refine** the continuous parts (pH, the masking doses, the buffer total) of the structures that lead:
    those on the survey's Pareto front, or where none is feasible, those nearest to feasibility (the constraint
    values are graded amounts, :func:`optimiser.objectives.violation_amounts`). The pH is scanned over each
@@ -58,7 +58,9 @@ PATTERN_MOVES = 3  # moves at most per step
 DOSE_POSITIONS = (0.0, 0.25, 0.5, 0.75, 1.0)  # masking doses tried, as positions in each agent's log range
 POLISH_MIN_GAIN = 0.005  # the polishing stops after a generation that adds less than this share to the hypervolume of
 #                          the front (its offspring found little the enumeration and refinement had not; our own rule)
-PAIR_PRUNED = "a pair of masking agents where either agent alone does nothing the method without it does not (survey)"
+PAIR_AGENTS = 4  # pairs of masking agents are surveyed among the agents that do most alone, at most this many (our own)
+PAIR_PRUNED = ("a pair of masking agents where either agent alone does nothing the method without it does not, or is "
+               f"not among the {PAIR_AGENTS} that do most alone (survey)")
 
 __all__ = ["Candidate", "Evaluation", "Evaluator", "MethodProblem", "SearchResult", "Alternative", "run_search",
            "strategy_of", "buffers_for", "BUFFER_LOG_RANGE"]
@@ -225,17 +227,26 @@ def _dominating(scenario: Scenario, e: Evaluation, front: Sequence[Evaluation]) 
 
 
 def _survey(scenario: Scenario, ev: Evaluator, structures: Sequence[Structure]) -> tuple[dict[tuple, Evaluation], int]:
-    """One candidate per structure; pairs of masking agents where each agent alone does something."""
+    """One candidate per structure; pairs of masking agents where each agent alone does something, among the
+    :data:`PAIR_AGENTS` agents that do most alone (feasible first, then by the weighted objectives, else by nearness
+    to feasibility)."""
     survey = Survey(scenario)
     first = [s for s in structures if len(s.masking) <= 1]
     out = {s.key: e for s, e in zip(first, ev.evaluate([survey.candidate(s) for s in first]))}
     pairs, skipped = [], 0
+    helpful: dict[tuple, set] = {}  # per structure without masking: the agents that do most alone
     for s in structures:
         if len(s.masking) < 2:
             continue
-        base = out.get(s.key[:3] + ((),) + s.key[4:])
-        singles = [out.get(s.key[:3] + ((a,),) + s.key[4:]) for a in s.masking]
-        if base is not None and all(x is not None and _does_something(x, base) for x in singles):
+        base_key = s.key[:3] + ((),) + s.key[4:]
+        base = out.get(base_key)
+        if base_key not in helpful and base is not None:
+            alone = [(a, out.get(s.key[:3] + ((a,),) + s.key[4:])) for a in scenario.search.masking]
+            alone = [(a, e) for a, e in alone if e is not None and _does_something(e, base)]
+            alone.sort(key=lambda x: (not x[1].feasible, decision.absolute_score(scenario, x[1]) if x[1].feasible
+                                      else x[1].violation, x[0]))
+            helpful[base_key] = {a for a, _ in alone[:PAIR_AGENTS]}
+        if base is not None and all(a in helpful[base_key] for a in s.masking):
             pairs.append(s)
         else:
             skipped += 1

@@ -426,7 +426,11 @@ def _fine_grid(p: Plan, eq: Equilibrium, ref: float) -> Array | None:
     if x is None:
         return None
     step = p.V[1] - p.V[0]
-    return np.linspace(max(0.0, x - 4 * step), min(p.V_hi * 1.2, x + 4 * step), p.n_points)
+    lo, hi = max(0.0, x - 4 * step), min(p.V_hi * 1.2, x + 4 * step)
+    # n points over four coarse steps each side, and n more over the coarse step each side, where the end point lies
+    # (points are cheap beside a second solve: one solve call costs about as much as a hundred points)
+    g = np.union1d(np.linspace(lo, hi, p.n_points), np.linspace(max(lo, x - step), min(hi, x + step), p.n_points))
+    return g[np.r_[True, np.diff(g) > 1e-9 * (hi - lo)]]  # the two grids share some points (to rounding)
 
 
 def _finer_grid(p: Plan, grid: Array | None, eqf: Equilibrium | None, ref: float) -> Array | None:
