@@ -55,3 +55,17 @@ search:
 @pytest.fixture()
 def tiny_scenario_text() -> str:
     return TINY_SCENARIO
+
+
+_SEARCHES: dict = {}
+
+
+def example_search(path):
+    """``run_search(seed=1)`` of a scenario file (an example, or the built-in demo), with its robustness scan, run
+    once per test session: the tests that read the same run share it (the searches are the suite's slowest part)."""
+    from optimiser.scenario import load
+    from optimiser.search import run_search
+    key = Path(path).read_text()  # by content: the built-in demo is the hardness example, word for word
+    if key not in _SEARCHES:
+        _SEARCHES[key] = run_search(load(path), seed=1)
+    return _SEARCHES[key]

@@ -5,6 +5,7 @@ import re
 from pathlib import Path
 
 import pytest
+from conftest import example_search
 
 from optimiser import report
 from optimiser.analysis import analyse
@@ -103,7 +104,7 @@ def test_a_listed_back_titration_is_checked_as_a_method():
 @pytest.fixture(scope="module")
 def hardness(scenarios_dir):
     sc = load(scenarios_dir / "hardness_iron_aluminium.yaml")
-    return sc, run_search(sc, seed=1)
+    return sc, example_search(scenarios_dir / "hardness_iron_aluminium.yaml")
 
 
 def test_the_hardness_example_lists_the_standard_method(hardness):

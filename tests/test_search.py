@@ -7,6 +7,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from optimiser.scenario import load, parse
+from conftest import example_search
 from grid import front_hypervolumes, grid_search
 
 from optimiser.search import run_search
@@ -45,7 +46,7 @@ def test_search_reaches_99_percent_of_the_grid_hypervolume(tiny, which):
 
 def test_calcium_beside_magnesium(scenarios_dir):
     """Standard Methods 3500-Ca B / ISO 6058: EDTA at pH 12-13 with Mg(OH)2 precipitated, or EGTA (Flaschka)."""
-    r = run_search(load(scenarios_dir / "calcium_beside_magnesium.yaml"), seed=1)
+    r = example_search(scenarios_dir / "calcium_beside_magnesium.yaml")
     c = r.recommended.candidate
     t = r.recommended_titration
     by_precipitation = c.titrant == "EDTA" and 12.0 <= c.pH <= 13.3 and "Mg(OH)2" in t.precipitates_start
@@ -56,7 +57,7 @@ def test_calcium_beside_magnesium(scenarios_dir):
 
 def test_total_hardness(scenarios_dir):
     """Standard Methods 2340 C / ISO 6059: pH near 10 with an indicator that works there (EBT or Calmagite)."""
-    r = run_search(load(scenarios_dir / "hardness_iron_aluminium.yaml"), seed=1)
+    r = example_search(scenarios_dir / "hardness_iron_aluminium.yaml")
     c = r.recommended.candidate
     assert 9.3 <= c.pH <= 10.7 and c.buffer == "ammonia"
     assert c.indicator in ("EBT", "calmagite")
@@ -67,7 +68,7 @@ def test_total_hardness(scenarios_dir):
 def test_zinc_beside_copper(scenarios_dir):
     """Zinc beside copper needs a copper masking agent (reduction to Cu(I): thiosulfate, thiourea; or cyanide)
     (common practice)."""
-    r = run_search(load(scenarios_dir / "zinc_beside_copper.yaml"), seed=1)
+    r = example_search(scenarios_dir / "zinc_beside_copper.yaml")
     agents = {a for a, _ in r.recommended.candidate.masking}
     assert agents & {"thiosulfate", "thiourea", "cyanide"}, r.recommended.candidate
 
