@@ -151,6 +151,7 @@ class Analysis:
     meets_criteria: bool  # False: the method shown is the closest compromise, not a procedure to follow
     budget: tuple[BudgetRow, ...]
     standardised_error_percent: float | None
+    error_by_cause_percent: float | None  # the causes added by magnitude (Titration.error_by_cause_percent)
     metals: tuple[str, ...]  # analytes first, then interferents: one order for every table and figure
     method: BenchMethod | None
     criteria: tuple[Criterion, ...]
@@ -534,7 +535,8 @@ def analyse(result: SearchResult) -> Analysis:
                                 len(constants)) if has_method else None)
     return Analysis(
         result=result, scenario=sc, meets_criteria=result.meets_criteria, budget=budget_rows(sc, t),
-        standardised_error_percent=t.standardised_error_percent if t is not None else None, metals=metal_order(sc),
+        standardised_error_percent=t.standardised_error_percent if t is not None else None,
+        error_by_cause_percent=t.error_by_cause_percent if t is not None else None, metals=metal_order(sc),
         method=bench, document=document,
         criteria=criteria(sc, e, t) if has_method else (), log_K_table=log_K_table(result),
         alternatives=alternatives(result), categories=CATEGORIES, safety=cautions,

@@ -553,7 +553,8 @@ def _budget_lines(t) -> list[str]:
         return []
     std = t.standardised_budget
     lines = [f"  error after standardisation {signed_fixed(t.standardised_error_percent)} % (as simulated "
-             f"{signed_fixed(t.error_percent)} %); by cause, as simulated / after standardisation:"]
+             f"{signed_fixed(t.error_percent)} %); its causes added by magnitude {t.error_by_cause_percent:.3f} %; "
+             "by cause, as simulated / after standardisation:"]
     for k in sorted(std, key=lambda k: -abs(std[k])):
         if max(abs(std[k]), abs(t.budget.get(k, 0.0))) >= 5e-4:
             lines.append(f"    {printable(budget_label(k))}: {signed_fixed(t.budget.get(k, 0.0))} % / {signed_fixed(std[k])} %")

@@ -49,6 +49,7 @@ def _method_json(result: SearchResult, e: Evaluation) -> dict[str, Any]:
         **strategy(c.mode).json_fields(t.method if t is not None else c),  # "mode", "back_metal", the strategy's own
         "predicted_error_percent": _r(e.error_percent),
         "standardised_error_percent": _r(e.standardised_error_percent),
+        "error_by_cause_percent": _r(t.error_by_cause_percent) if t is not None else None,
         "error_budget": {k: _r(v, 4) for k, v in t.budget.items()} if t is not None else {},
         "steps": steps_json(t) if t is not None else [],
         "error_budget_standardised": {k: _r(v, 4) for k, v in t.standardised_budget.items()} if t is not None else {},
@@ -119,6 +120,7 @@ def titration_json(t: Titration, every: int = 1) -> dict[str, Any]:
         "endpoint": {"volume_mL": _r(t.endpoint_mL), "pM": {m: _r(v) for m, v in t.pM_ep.items()}},
         "error_percent": _r(t.error_percent), "indicator_blank_percent": _r(t.indicator_blank_percent),
         "standardised_error_percent": _r(t.standardised_error_percent),
+        "error_by_cause_percent": _r(t.error_by_cause_percent),
         "error_budget": {k: _r(v) for k, v in t.budget.items()},
         "error_budget_standardised": {k: _r(v) for k, v in t.standardised_budget.items()},
         "sharpness_mL": _r(t.sharpness_mL),
