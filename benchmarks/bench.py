@@ -3,6 +3,8 @@
     python benchmarks/bench.py solver   # 500-point curve: our solver vs scipy point by point vs phreeqc
     python benchmarks/bench.py search   # the search vs the exhaustive grid and random sampling, seeds 1-10
     python benchmarks/bench.py seeds    # seeds 1-10 on every example scenario: the same structure, pH spread
+    python benchmarks/bench.py seeds DIR  # ... and on every scenario the tests searched (recorded by a test run with
+                                          # OPTIMISER_RECORD_SCENARIOS=DIR, tests/conftest.py)
     python benchmarks/bench.py run      # the whole `optimiser run` on the demo vs the bare import of its libraries
     python benchmarks/bench.py batch    # batch --jobs 2 vs --jobs 1 over the example scenarios
     python benchmarks/bench.py generated [N] [SEEDS]  # N generated scenarios (200): grid feasible => search feasible
@@ -183,11 +185,24 @@ def structure_of(r):
     return (c.titrant, c.indicator, c.buffer, tuple(a for a, _ in c.masking), c.strategy.describe(c))
 
 
-def bench_seeds(seeds=range(1, 11)):
-    """Seeds 1-10 on every example scenario: the same structure, and the spread of the recommended pH."""
+def recorded_scenarios(folder):
+    """(name, scenario) of every scenario the tests searched, as recorded by a test run with
+    OPTIMISER_RECORD_SCENARIOS=<folder> (tests/conftest.py), in a stable order."""
+    import pickle
+    out = []
+    for p in sorted(Path(folder).glob("*.pkl")):
+        sc = pickle.loads(p.read_bytes())
+        out.append((f"{sc.name} (tests, {p.stem[:6]})", sc))
+    return sorted(out, key=lambda x: x[0])
+
+
+def bench_seeds(seeds=range(1, 11), folder=None):
+    """Seeds 1-10 on every example scenario (and, with ``folder``, every scenario the tests searched): the same
+    structure, and the spread of the recommended pH."""
     from optimiser.search import run_search
     print("seed independence: the recommended structure and pH over seeds " + f"{min(seeds)}-{max(seeds)}")
-    for name, sc in example_scenarios():
+    found = differs = 0
+    for name, sc in example_scenarios() + (recorded_scenarios(folder) if folder else []):
         rs = [run_search(sc, seed=s, with_robustness=False) for s in seeds]
         kinds = {structure_of(r) for r in rs}
         pHs = [r.recommended.candidate.pH for r in rs if r.recommended is not None]
@@ -196,6 +211,10 @@ def bench_seeds(seeds=range(1, 11)):
         print(f"  {name}: {'same' if len(kinds) == 1 else f'{len(kinds)} different'} structure(s) "
               f"{sorted(kinds, key=str)[0]}; pH {min(pHs, default=float('nan')):.2f}-{max(pHs, default=float('nan')):.2f} "
               f"(spread {spread:.2f}) {'OK' if ok else 'DIFFERS'}", flush=True)
+        found += 1
+        differs += not ok
+    print(f"seed independence: {found} scenarios, {found - differs} with the same structure and a pH spread of at most "
+          f"0.15 over seeds {min(seeds)}-{max(seeds)}, {differs} not")
 
 
 def restricted_demo():
@@ -338,6 +357,9 @@ def bench_batch():
 
 if __name__ == "__main__":
     which = sys.argv[1] if len(sys.argv) > 1 else "all"
+    if which == "seeds" and len(sys.argv) > 2:  # seeds FOLDER: also every scenario a recorded test run searched
+        bench_seeds(folder=sys.argv[2])
+        sys.exit(0)
     if which == "generated":
         bench_generated(int(sys.argv[2]) if len(sys.argv) > 2 else 200,
                         range(1, 1 + (int(sys.argv[3]) if len(sys.argv) > 3 else 10)))

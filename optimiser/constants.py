@@ -138,7 +138,10 @@ def davies_A(temperature_C: ArrayLike) -> NDArray[np.float64]:
     """
     if np.ndim(temperature_C) == 0:
         return _davies_A_scalar(float(temperature_C))
-    return _davies_A(np.asarray(temperature_C, dtype=float))
+    t = np.asarray(temperature_C, dtype=float)
+    if t.size and (t == t.flat[0]).all():  # one temperature for every point (a curve): computed once
+        return np.full(t.shape, _davies_A_scalar(float(t.flat[0])))
+    return _davies_A(t)
 
 
 @lru_cache(maxsize=256)

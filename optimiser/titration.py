@@ -288,11 +288,14 @@ def _check_constants(metals: Sequence[str], titrant: str) -> None:
                                        f"with {m} present (the model never takes a missing constant as 'no binding')")
 
 
-def plan(sample: Sample, method: Method, n_points: int, carry: Carry | None = None) -> Plan:
+def plan(sample: Sample, method: Method, n_points: int, carry: Carry | None = None, like: Plan | None = None) -> Plan:
     """Set up one titration: pretreatment, chemical system, and the totals along the curve (by its strategy).
 
     ``carry`` is what earlier steps of a multi-step strategy left in the solution (their titrant, a metal or ligand
-    added or consumed, their volume); the method's own reagents are concentrations at this step's start."""
+    added or consumed, their volume); the method's own reagents are concentrations at this step's start. ``like``: a
+    plan whose chemical system holds every component of this one (the sample's, for its standard), which is then
+    used with zero totals for the components this titration lacks, so that both are solved in one call (the
+    equilibrium is the same: a component with no total forms no species)."""
     db = database()
     strategy = method.strategy
     warmed_from = sample.temperature_C
@@ -311,6 +314,8 @@ def plan(sample: Sample, method: Method, n_points: int, carry: Carry | None = No
     ligands = method.ligands + tuple(k for k in carried if k not in db.metals and k not in method.ligands)
     # the sample's own anions join the method's ligands as components (after them, so a method's system is unchanged)
     system = build_system(tuple(metals) + ions, tuple(dict.fromkeys([*ligands, *sample.anions])))
+    if like is not None and set(system.components) <= set(like.system.components):
+        system = like.system
     comps = system.components
     V0, cT = sample.volume_mL + (carry.volume_mL if carry is not None else 0.0), method.titrant_conc_M
     binding = [m for m in prep.metals if db.metals[m].get("binds_titrant", True) is not False]
@@ -367,9 +372,7 @@ def _solve_batch(plans: Sequence[Plan], grids: Sequence[Array | None], starts: S
         bg = np.concatenate([background_M(plans[k], Tk) for k, Tk in zip(ks, blocks, strict=True)])
         I0 = np.concatenate([_start_I(plans[k], grids[k], starts[k] if starts is not None else None) for k in ks])
         Tc = np.concatenate([np.full(len(grids[k]), plans[k].sample.temperature_C) for k in ks])
-        labels = [f"{plans[k].method.strategy.volume_name} volume {v:.4f} mL "
-                  f"(pH {plans[k].method.pH:.2f}, {plans[k].method.titrant}, {plans[k].method.indicator})"
-                  for k in ks for v in grids[k]]
+        labels = _PointLabels([(plans[k].method, grids[k]) for k in ks])
         restart = np.concatenate([np.arange(len(grids[k])) == 0 for k in ks])  # continuation within each curve
         eq = solve(system, T, pH=pH, ionic_strength_M=None, background_ionic_strength_M=bg, temperature_C=Tc,
                    point_labels=labels, restart=restart, I_tol=CURVE_I_TOL, ionic_strength_start_M=I0)
@@ -379,6 +382,27 @@ def _solve_batch(plans: Sequence[Plan], grids: Sequence[Array | None], starts: S
             out[k] = _slice(eq, slice(start, start + n))
             start += n
     return out
+
+
+class _PointLabels(Sequence):
+    """The names of a batched solve's points for its error messages, worded only when one is asked for (a search
+    solves hundreds of thousands of points and words none of them)."""
+
+    def __init__(self, parts: list[tuple[Method, Array]]):
+        self.parts = parts
+        self.ends = np.cumsum([len(g) for _, g in parts])
+
+    def __len__(self) -> int:
+        return int(self.ends[-1]) if len(self.ends) else 0
+
+    def __getitem__(self, i):
+        if isinstance(i, slice):
+            return [self[j] for j in range(*i.indices(len(self)))]
+        i = int(i) + (len(self) if i < 0 else 0)
+        k = int(np.searchsorted(self.ends, i, side="right"))
+        m, grid = self.parts[k]
+        v = grid[i - (int(self.ends[k - 1]) if k else 0)]
+        return f"{m.strategy.volume_name} volume {v:.4f} mL (pH {m.pH:.2f}, {m.titrant}, {m.indicator})"
 
 
 def _start_I(p: Plan, grid: Array, coarse: Equilibrium | None) -> Array:
@@ -513,7 +537,8 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
             composite[k] = None
             plans.append(None)
     live = [p for p in plans if p is not None]
-    std = [plan(standard_sample(sample), p.method, n_points, _reagents_only(p.carry)) for p in live] if standardise else []
+    std = ([plan(standard_sample(sample), p.method, n_points, _reagents_only(p.carry), like=p) for p in live]
+           if standardise else [])
     done = _run(live + std, pH_drift, n_drift=len(live)) if live else []
     if std:
         done = [replace(t, standardisation=s.endpoints[0]) for t, s in zip(done[:len(live)], done[len(live):])]

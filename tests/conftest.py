@@ -3,6 +3,7 @@ import matplotlib
 
 matplotlib.use("Agg")
 
+import os
 import sys
 from pathlib import Path
 
@@ -11,6 +12,29 @@ import pytest
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(Path(__file__).resolve().parent))  # the phreeqc bridge and the browser helper
 sys.path.insert(0, str(ROOT / "benchmarks"))  # the exhaustive grid the search is checked against
+
+
+def _record_searched_scenarios(folder: str) -> None:
+    """With OPTIMISER_RECORD_SCENARIOS=<folder>, every scenario a test searches is pickled there (once each), for
+    ``benchmarks/bench.py seeds <folder>``: the seed independence of every scenario the tests use. Set before the
+    test modules import ``run_search``, which they then import wrapped."""
+    import hashlib
+    import pickle
+
+    import optimiser.search as search
+    out = Path(folder)
+    out.mkdir(parents=True, exist_ok=True)
+    original = search.run_search
+
+    def run_search(scenario, *args, **kwargs):
+        data = pickle.dumps(scenario)
+        (out / f"{hashlib.sha1(data).hexdigest()[:16]}.pkl").write_bytes(data)
+        return original(scenario, *args, **kwargs)
+    search.run_search = run_search
+
+
+if os.environ.get("OPTIMISER_RECORD_SCENARIOS"):
+    _record_searched_scenarios(os.environ["OPTIMISER_RECORD_SCENARIOS"])
 
 
 @pytest.fixture(scope="session")
