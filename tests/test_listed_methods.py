@@ -226,9 +226,14 @@ def test_a_candidate_whose_simulation_fails_counts_as_simulated(monkeypatch):
     assert "among the 1 candidates simulated" in infeasible_note(list(ev.cache.values()))
 
 
-def test_the_command_line_names_the_listed_methods(capsys, scenarios_dir, tmp_path):
+def test_the_command_line_names_the_listed_methods(capsys, scenarios_dir, tmp_path, monkeypatch):
+    """What `run` prints and writes of the listed methods (the search itself is the session's shared run of this
+    example, seed 1, as `run --seed 1` would do it: tests/conftest.example_search)."""
+    import optimiser.search
     from optimiser.cli import main
     path = str(scenarios_dir / "hardness_iron_aluminium.yaml")
+    searched = example_search(path)
+    monkeypatch.setattr(optimiser.search, "run_search", lambda sc, seed=1, **kw: searched if seed == 1 else None)
     assert main(["check", path]) == 0
     assert "2 listed methods" in capsys.readouterr().out
     assert main(["run", path, "--out", str(tmp_path), "--seed", "1"]) == 0

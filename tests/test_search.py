@@ -126,7 +126,7 @@ targets: {max_error_percent: 0.5}
 METALS = ["Mg", "Ca", "Sr", "Ba", "Mn", "Fe(II)", "Fe(III)", "Co", "Ni", "Cu", "Zn", "Cd", "Hg", "Pb", "Al", "Bi"]
 
 
-@settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=5, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(st.lists(st.sampled_from(METALS), min_size=1, max_size=4, unique=True), st.integers(0, 3),
        st.floats(-5, -1.5), st.integers(0, 2), st.integers(0, 10**6), st.floats(1.0, 11.0))
 def test_search_on_random_samples_never_raises(metals, n_analyte, log_c, n_mask, seed, pH_low):
