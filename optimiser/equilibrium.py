@@ -137,7 +137,7 @@ def solve(system: ChemicalSystem, totals: ArrayLike, pH: ArrayLike | None = None
     I_tol : float
         Relative change of a computed ionic strength at which its iteration stops (default :data:`I_TOL`, log K
         within 1e-8). A titration curve uses 1e-5, which keeps every concentration within about 1.5e-5 relative of
-        the default's and saves most of the extra Newton passes (:data:`optimiser.titration.CURVE_I_TOL`).
+        the default's and saves most of the extra Newton passes (:data:`optimiser.curves.CURVE_I_TOL`).
     ionic_strength_start_M : array_like, optional
         Where a computed ionic strength starts at a point that does not continue from the one before (a restart)
         [mol/L]; default the background. A close estimate saves the passes of its iteration.

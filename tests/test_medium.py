@@ -171,7 +171,7 @@ def test_scenario_ionic_strength_is_the_matrix_background_and_alkali_ions_are_re
 def test_start_estimate_and_curve_tolerance_change_no_result():
     """A starting ionic strength only saves iterations (same answer to the default tolerance); the curves' looser
     stopping rule (CURVE_I_TOL) keeps every species within 2e-5 relative of the default's (the measured 1.5e-5)."""
-    from optimiser.titration import CURVE_I_TOL
+    from optimiser.curves import CURVE_I_TOL
     m = Method(pH=10.0, buffer="ammonia", titrant="EDTA", titrant_conc_M=0.01, indicator="EBT")
     p = plan(SAMPLE, m, 41)
     T = p.totals(p.V)
