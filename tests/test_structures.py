@@ -120,3 +120,19 @@ def test_the_answer_does_not_depend_on_the_seed(tiny, which):
     assert len(kinds) == 1, kinds
     pHs = [r.recommended.candidate.pH for r in rs]
     assert max(pHs) - min(pHs) <= 0.15, pHs
+
+
+def test_the_polishing_stops_when_a_generation_adds_little():
+    """The small zinc space: the enumeration and refinement find its front, so pymoo stops long before 30
+    generations; with the gain it must add set to nothing (every generation counts), it runs them all."""
+    from optimiser import search
+    sc = parse(ZINC_SMALL, "zinc-small.yaml")
+    r = search.run_search(sc, seed=1, n_gen=30, with_robustness=False)
+    assert 1 <= r.generations < 10
+    all_gens = search.POLISH_MIN_GAIN
+    try:
+        search.POLISH_MIN_GAIN = -1.0
+        r_all = search.run_search(sc, seed=1, n_gen=30, pop_size=8, with_robustness=False)
+    finally:
+        search.POLISH_MIN_GAIN = all_gens
+    assert r_all.generations >= 29
