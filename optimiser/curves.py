@@ -98,11 +98,17 @@ def slice_of(eq: Equilibrium, sl: slice) -> Equilibrium:
                        max_residual=eq.max_residual, iterations=eq.iterations)
 
 
+def end_point(p: Plan, grid: Array, eq: Equilibrium, ref: float) -> float | None:
+    """The end point read on a solved grid: where the indicator has turned to the method's reading level [mL]
+    (None where it never does)."""
+    return readout.turned_crossing(p.method, grid, p.method.strategy.turned(p, eq, ref), readout.read_levels(p.method, ref)[0])
+
+
 def fine_grid(p: Plan, eq: Equilibrium, ref: float) -> Array | None:
     """Points around the coarse end point, for the refined solve (None where the indicator never turns)."""
     if readout.shows_no_change(p.method, ref):
         return None
-    x = readout.turned_crossing(p.method, p.V, p.method.strategy.turned(p, eq, ref), readout.read_levels(p.method, ref)[0])
+    x = end_point(p, p.V, eq, ref)
     if x is None:
         return None
     step = p.V[1] - p.V[0]
@@ -113,16 +119,13 @@ def fine_grid(p: Plan, eq: Equilibrium, ref: float) -> Array | None:
     return g[np.r_[True, np.diff(g) > 1e-9 * (hi - lo)]]  # the two grids share some points (to rounding)
 
 
-def finer_grid(p: Plan, grid: Array | None, eqf: Equilibrium | None, ref: float) -> Array | None:
-    """Points within two steps of the end point read on the refined grid, where that grid's step there is more than
-    :data:`FINER_STEP` of the titre (None where it is not, or where no end point is read).
+def finer_grid(p: Plan, grid: Array | None, x: float | None) -> Array | None:
+    """Points within two steps of ``x``, the end point read on the refined grid, where that grid's step there is more
+    than :data:`FINER_STEP` of the titre (None where it is not, or where no end point is read).
 
     The coarse curve spans every metal that binds the titrant; where the analyte is a small part of them (iron
     beside much calcium) the first refined region is still too coarse to read an end point or its colour change."""
-    if grid is None or eqf is None:
-        return None
-    x = readout.turned_crossing(p.method, grid, p.method.strategy.turned(p, eqf, ref), readout.read_levels(p.method, ref)[0])
-    if x is None or x <= 0:
+    if grid is None or x is None or x <= 0:
         return None
     i = int(np.clip(np.searchsorted(grid, x), 1, len(grid) - 1))
     h = grid[i] - grid[i - 1]

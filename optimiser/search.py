@@ -417,7 +417,8 @@ class _FrontScale:
         if not len(F):
             return 0.0
         X = (F - self.lo) / self.span
-        return float(self.indicator(X[np.all(X < 1.1, axis=1)])) if np.any(np.all(X < 1.1, axis=1)) else 0.0
+        X = X[np.all(X < 1.1, axis=1)]  # beyond the reference point on some objective: no volume
+        return float(self.indicator(X)) if len(X) else 0.0
 
 
 def _stats(ev: Evaluator, considered: int, pruned: tuple[tuple[str, int], ...]) -> SearchStats:

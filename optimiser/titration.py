@@ -25,7 +25,7 @@ from . import findings as fd
 from . import readout
 from .anions import assumptions as anion_assumptions
 from .constants import DAVIES_LIMIT_M, H, database
-from .curves import FINER_ROUNDS, fine_grid, finer_grid, merge, pH_drifts, solve_batch
+from .curves import FINER_ROUNDS, end_point, fine_grid, finer_grid, merge, pH_drifts, solve_batch
 from .equilibrium import Equilibrium, build_system
 from .errors import InapplicableMethodError, MissingConstantError
 from .findings import Finding
@@ -450,14 +450,16 @@ def _reagents_only(carry: Carry | None) -> Carry | None:
 
 
 def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
-    """The three batched solves (coarse curves, refined end-point regions, equivalence and end points), then the
-    read-out of each titration (the pH drift of the first ``n_drift``)."""
+    """The batched solves (coarse curves, refined end-point regions, finer where still coarse against the titre,
+    equivalence and end points), then the read-out of each titration (the pH drift of the first ``n_drift``)."""
     coarse = solve_batch(live, [p.V for p in live])
     refs = [p.method.strategy.reference(p, eq) for p, eq in zip(live, coarse)]
     fine_grids = [fine_grid(p, eq, ref) for p, eq, ref in zip(live, coarse, refs)]
     fine = solve_batch(live, fine_grids, coarse)
+    V_eps = [end_point(p, g, eqf, ref) if eqf is not None else None
+             for p, g, eqf, ref in zip(live, fine_grids, fine, refs)]
     for _ in range(FINER_ROUNDS):  # where the region is still coarse against the titre, once more around the end point
-        finer = [finer_grid(p, g, eqf, ref) for p, g, eqf, ref in zip(live, fine_grids, fine, refs)]
+        finer = [finer_grid(p, g, x) for p, g, x in zip(live, fine_grids, V_eps)]
         if all(g is None for g in finer):
             break
         for k, eq2 in enumerate(solve_batch(live, finer, coarse)):
@@ -465,11 +467,7 @@ def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
                 both = np.concatenate([fine_grids[k], finer[k]])
                 order = np.argsort(both, kind="stable")
                 fine_grids[k], fine[k] = both[order], merge(fine[k], eq2, order)
-    V_eps = []
-    for p, eqf, grid, ref in zip(live, fine, fine_grids, refs):
-        level = readout.read_levels(p.method, ref)[0]
-        V_eps.append(readout.turned_crossing(p.method, grid, p.method.strategy.turned(p, eqf, ref), level)
-                     if eqf is not None else None)
+                V_eps[k] = end_point(live[k], fine_grids[k], fine[k], refs[k])
     probes = [np.array([p.V_eq_ref] + ([v] if v is not None else [])) for p, v in zip(live, V_eps)]
     probed = solve_batch(live, probes, coarse)
     drifts = pH_drifts(live[:n_drift], coarse, V_eps) if pH_drift else []
