@@ -13,6 +13,7 @@ from multiprocessing import get_context
 from pathlib import Path
 from typing import Any
 
+from . import parallel
 from .equilibrium import warm_up
 from .errors import OptimiserError, printable
 from .reagents import HAZARD_NAMES
@@ -209,7 +210,10 @@ def run_batch(paths: list[Path], out_dir: Path, jobs: int | None = None, seed: i
             done(k, run_one(*arg))
     else:
         warm_up()  # compile (or load) the solver's kernel once, before the workers fork
-        with ProcessPoolExecutor(max_workers=jobs, mp_context=get_context("fork")) as pool:
+        # each scenario's search splits its own batches over its share of the cores only (none where they are taken)
+        share = max(1, parallel.available_cores() // jobs)
+        with ProcessPoolExecutor(max_workers=jobs, mp_context=get_context("fork"), initializer=parallel.set_workers,
+                                 initargs=(share,)) as pool:
             futures = {pool.submit(run_one, *arg): k for k, arg in enumerate(args)}
             for f in as_completed(futures):
                 done(futures[f], f.result())

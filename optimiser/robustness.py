@@ -7,7 +7,8 @@ from dataclasses import replace
 
 import numpy as np
 
-from .evaluation import Evaluation
+from . import parallel
+from .evaluation import PARALLEL_MIN, Evaluation
 from .method import Method
 from .reagents import catalogue
 from .scenario import Scenario
@@ -63,15 +64,18 @@ def robustness(scenario: Scenario, e: Evaluation, half_width: float = 1.0, step:
 
 
 def _errors(scenario: Scenario, methods: Sequence[Method], e_std: float) -> np.ndarray:
-    errors: list = []
-    sims = simulate_many(scenario.sample, methods, n_points=SCAN_POINTS, errors=errors)
-    out = []
-    for t in sims:  # the error left after the titrant was standardised at the method's set-point
-        if t is None or t.error_percent is None or t.blocked_by or not t.indicator_usable:
-            out.append(np.nan)
-        else:
-            out.append(standardised(t.error_percent, e_std))
-    return np.array(out)
+    """The error left after the titrant was standardised at the method's set-point, per method (NaN where there is
+    no usable end point); the methods split over processes (:mod:`optimiser.parallel`)."""
+    def errors_of(part: Sequence[Method]) -> list[float]:
+        errors: list = []
+        out = []
+        for t in simulate_many(scenario.sample, part, n_points=SCAN_POINTS, errors=errors):
+            if t is None or t.error_percent is None or t.blocked_by or not t.indicator_usable:
+                out.append(math.nan)
+            else:
+                out.append(standardised(t.error_percent, e_std))
+        return out
+    return np.array(parallel.map_split(errors_of, methods, PARALLEL_MIN), dtype=float)
 
 
 def window(x: np.ndarray, err: np.ndarray, x0: float, target: float) -> tuple[float, float] | None:

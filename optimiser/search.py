@@ -32,7 +32,7 @@ from pymoo.core.problem import Problem
 from pymoo.core.variable import Choice, Real
 from pymoo.indicators.hv import HV
 
-from . import decision
+from . import decision, parallel
 from .candidate import Candidate, buffers_for
 from .comparison import ListedOutcome, compare
 from .decision import strategy_of
@@ -200,16 +200,23 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 20, n_gen: int
             rule += "; " + how
         rec_t = simulate(scenario.sample, chosen.candidate.method(scenario), n_points=161, pH_drift=True, standardise=True)
         chosen = ev.score(chosen.candidate, rec_t, [])  # the criteria again, on the finer curve
-        if with_robustness:
-            pH_w, doses, scan_pH, scan_dose = robustness(scenario, chosen)
         note = decision.compromise_note(scenario, chosen)
         if note:
             notes.append(note)
-    report(4)
     alts = tuple(Alternative(e, strategy_of(e)) for e in front)
+
+    def last(part: str):  # the recommendation's robustness, and the listed methods, side by side where cores allow
+        if part == "robustness":
+            return robustness(scenario, chosen) if chosen is not None and with_robustness else None
+        return compare(scenario, [a.evaluation for a in alts], chosen, with_robustness)
+    parts = ("robustness", "listed") if scenario.methods else ("robustness",)
+    scans, *listed_ = parallel.fork_map(last, parts) if len(parts) > 1 else [last(parts[0])]
+    listed = listed_[0] if listed_ else ()
+    if scans is not None:
+        pH_w, doses, scan_pH, scan_dose = scans
+    report(4)
     curves = conditional_curves(scenario, chosen.candidate if chosen else None, CC_PH)
     stats = _stats(ev, considered, pruned)
-    listed = compare(scenario, [a.evaluation for a in alts], chosen, with_robustness)
     return SearchResult(scenario=scenario, seed=seed, evaluations=ev.n_evaluations, generations=generations,
                         wall_time_s=time.perf_counter() - t0, objectives=scenario.objectives, front=alts,
                         recommended=chosen, recommended_titration=rec_t, rule=rule,

@@ -28,14 +28,24 @@ def _env():
     return env
 
 
+FIGURE_SHARES = (("pareto", "conditional"), ("budget", "titration", "speciation", "robustness"))  # the figures drawn
+#   in each of two processes (measured on the demo: the Pareto panels take about as long as the four others)
+
+
 def _figures(analysis: Analysis) -> dict[str, str]:
+    """Each figure as SVG text; the figures shared out over two processes where there are cores for them (the
+    drawing is the report's largest cost; the SVG does not depend on the process, see :mod:`optimiser.report.figures`)."""
+    from .. import parallel
     from . import figures  # matplotlib is loaded only when a page is drawn
-    figs = {"conditional": figures.conditional_figure(analysis), "pareto": figures.pareto_figure(analysis)}
-    if analysis.method is not None:
-        figs.update(budget=figures.budget_figure(analysis),
-                    titration=figures.titration_figure(analysis), speciation=figures.speciation_figure(analysis),
-                    robustness=figures.robustness_figure(analysis))
-    return figs
+    names = [n for n in ("conditional", "pareto") + FIGURE_SHARES[1] if analysis.method is not None or n in FIGURE_SHARES[0]]
+    draw = {n: getattr(figures, f"{n}_figure") for n in names}
+
+    def drawn(part: tuple[str, ...]) -> list[str]:
+        return [draw[n](analysis) for n in part]
+    shares = [tuple(n for n in share if n in draw) for share in FIGURE_SHARES]
+    shares = [s for s in shares if s] if parallel.workers() > 1 else [tuple(names)]
+    svg = dict(zip([n for s in shares for n in s], [x for part in parallel.fork_map(drawn, shares) for x in part]))
+    return {n: svg[n] for n in names}
 
 
 def build_date(environ: Mapping[str, str] = os.environ) -> str | None:

@@ -1,0 +1,141 @@
+"""Work split over forked processes: a function applied to chunks of a list, one chunk per process.
+
+The search's large batches of candidates (the survey, the refinement's scans) and the report's figures are
+independent pieces of work; on a machine with several cores each chunk runs in a child process forked from this one,
+so that it starts with everything already loaded (the compiled solver, the data, the caches), and sends its results
+back pickled through a pipe. The first chunk runs here meanwhile. Nothing the children learn (a cache they fill)
+comes back: only the results. A result never depends on how the work was split (each candidate and each figure is
+computed on its own; ``tests/test_parallel.py`` compares the split and the whole).
+
+Where ``os.fork`` does not exist, or one process is asked for, the chunks run here one after the other.
+"""
+from __future__ import annotations
+
+import os
+import pickle
+import sys
+from collections.abc import Callable, Sequence
+from typing import TypeVar
+
+T = TypeVar("T")
+R = TypeVar("R")
+
+WORKERS_MAX = 4  # processes at most by default (our rule: beyond it the batches split thin and the pickling grows)
+_workers: int | None = None  # set_workers(); None: the default
+
+
+def available_cores() -> int:
+    """Cores this process may run on (its CPU affinity where the system tells it)."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        return os.cpu_count() or 1
+
+
+def workers() -> int:
+    """Processes a split uses: what :func:`set_workers` set, else the available cores up to :data:`WORKERS_MAX`;
+    1 where the system cannot fork."""
+    if not hasattr(os, "fork"):
+        return 1
+    return _workers if _workers is not None else max(1, min(available_cores(), WORKERS_MAX))
+
+
+def set_workers(n: int | None) -> None:
+    """Use ``n`` processes for each split from now on (1: none forked; None: the default). A batch that runs
+    several scenarios at once gives each its share of the cores."""
+    global _workers
+    if n is not None and (not isinstance(n, int) or n < 1):
+        raise ValueError(f"workers must be a whole number of 1 or more, or None; got {n!r}")
+    _workers = n
+
+
+def split(items: Sequence[T], n: int) -> list[list[T]]:
+    """``items`` dealt into ``n`` chunks in turn (item k to chunk k mod n), so that neighbours, which tend to cost
+    alike, are shared out evenly; :func:`join` puts results back in order."""
+    return [list(items[i::n]) for i in range(n)]
+
+
+def join(parts: Sequence[Sequence[R]]) -> list[R]:
+    """The inverse of :func:`split`: results in the order of the items."""
+    out: list = [None] * sum(len(p) for p in parts)
+    for i, p in enumerate(parts):
+        out[i::len(parts)] = p
+    return out
+
+
+def fork_map(fn: Callable[[T], R], chunks: Sequence[T]) -> list[R]:
+    """``[fn(c) for c in chunks]``, the first chunk here and each other in a forked child process.
+
+    Within a split nothing splits further (a chunk that asks for :func:`workers` gets 1). An exception raised in a
+    child is raised here (after every child has ended); where a child cannot be forked, its chunk runs here.
+    """
+    if len(chunks) <= 1 or not hasattr(os, "fork") or workers() <= 1:
+        return [fn(c) for c in chunks]
+    sys.stdout.flush()
+    sys.stderr.flush()
+    children: list[tuple[int, int] | None] = []
+    for c in chunks[1:]:
+        r, w = os.pipe()
+        try:
+            pid = os.fork()
+        except OSError:  # no process to be had: this chunk runs here
+            os.close(r)
+            os.close(w)
+            children.append(None)
+            continue
+        if pid == 0:  # the child: compute (splitting nothing further), send, and leave without running anything of
+            status = 0  # the parent's
+            try:
+                set_workers(1)
+                os.close(r)
+                try:
+                    data = pickle.dumps((True, fn(c)), protocol=pickle.HIGHEST_PROTOCOL)
+                except BaseException as exc:  # sent to the parent, which raises it
+                    try:
+                        data = pickle.dumps((False, exc), protocol=pickle.HIGHEST_PROTOCOL)
+                    except Exception:
+                        data = pickle.dumps((False, RuntimeError(f"{type(exc).__name__}: {exc}")))
+                with os.fdopen(w, "wb") as f:
+                    f.write(data)
+            except BaseException:
+                status = 1
+            finally:
+                os._exit(status)
+        os.close(w)
+        children.append((pid, r))
+    before = _workers
+    set_workers(1)  # the cores are taken: this chunk, too, splits nothing further
+    try:
+        results: list = [fn(chunks[0])]
+    finally:
+        set_workers(before)
+    failure: BaseException | None = None
+    for c, child in zip(chunks[1:], children):
+        if child is None:
+            results.append(fn(c))
+            continue
+        pid, r = child
+        with os.fdopen(r, "rb") as f:
+            data = f.read()
+        os.waitpid(pid, 0)
+        if not data:
+            failure = failure or RuntimeError("a worker process ended without sending its results")
+            results.append(None)
+            continue
+        ok, value = pickle.loads(data)
+        if not ok:
+            failure = failure or value
+        results.append(value)
+    if failure is not None:
+        raise failure
+    return results
+
+
+def map_split(fn: Callable[[Sequence[T]], Sequence[R]], items: Sequence[T], minimum: int) -> list[R]:
+    """``fn(items)`` computed in :func:`workers` pieces (:func:`split`) in parallel when there are at least
+    ``minimum`` items (below it the forking costs more than it saves), the results in the order of the items.
+    ``fn`` maps a list of items to a list of results, one each."""
+    n = min(workers(), len(items) // max(minimum, 1)) if minimum > 0 else workers()
+    if n <= 1:
+        return list(fn(items))
+    return join(fork_map(fn, split(items, n)))

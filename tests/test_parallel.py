@@ -1,0 +1,83 @@
+"""Work split over forked processes (optimiser.parallel): the results never depend on how the work was split."""
+import os
+
+import pytest
+
+from optimiser import parallel
+from optimiser.evaluation import Evaluator
+from optimiser.scenario import demo
+from optimiser.structures import enumerate_structures
+from optimiser.survey import Survey
+
+needs_fork = pytest.mark.skipif(not hasattr(os, "fork"), reason="no os.fork on this system: every split runs in turn")
+
+
+@pytest.fixture
+def two_workers():
+    parallel.set_workers(2)
+    yield
+    parallel.set_workers(None)
+
+
+def test_split_and_join_are_inverse():
+    items = list(range(11))
+    parts = parallel.split(items, 3)
+    assert parts == [[0, 3, 6, 9], [1, 4, 7, 10], [2, 5, 8]]
+    assert parallel.join(parts) == items
+
+
+@needs_fork
+def test_fork_map_gives_each_chunk_its_own_result_in_order(two_workers):
+    assert parallel.fork_map(lambda c: [x * x for x in c], [[1, 2], [3], [4, 5, 6]]) == [[1, 4], [9], [16, 25, 36]]
+    children = parallel.fork_map(lambda c: os.getpid(), [0, 1])
+    assert children[0] == os.getpid() and children[1] != os.getpid()  # the second chunk ran in another process
+
+
+@needs_fork
+def test_nothing_splits_further_within_a_split(two_workers):
+    assert parallel.fork_map(lambda c: parallel.workers(), [0, 1]) == [1, 1]
+    assert parallel.workers() == 2  # and the setting is back afterwards
+
+
+@needs_fork
+def test_an_exception_in_a_child_is_raised_here(two_workers):
+    def fails_in_second(c):
+        if c == 1:
+            raise ValueError("chunk 1 failed")
+        return c
+    with pytest.raises(ValueError, match="chunk 1 failed"):
+        parallel.fork_map(fails_in_second, [0, 1])
+
+
+def test_one_worker_runs_every_chunk_here():
+    parallel.set_workers(1)
+    try:
+        assert parallel.fork_map(lambda c: os.getpid(), [0, 1, 2]) == [os.getpid()] * 3
+    finally:
+        parallel.set_workers(None)
+
+
+def test_set_workers_refuses_what_is_not_a_count():
+    for bad in (0, -1, 1.5, "2"):
+        with pytest.raises(ValueError, match="whole number of 1 or more"):
+            parallel.set_workers(bad)
+
+
+@needs_fork
+def test_the_survey_split_over_processes_scores_every_candidate_as_in_one(two_workers):
+    """The candidates of a survey, evaluated in one process and split over two: identical objectives,
+    constraints, findings and end points (each candidate is simulated on its own; the batching only groups the
+    solves)."""
+    sc = demo()
+    structures, _, _ = enumerate_structures(sc)
+    survey = Survey(sc)
+    candidates = [survey.candidate(s) for s in structures][:40]
+    assert len(candidates) >= 2 * 8  # enough that the batch is split (evaluation.PARALLEL_MIN per process)
+    split = Evaluator(sc).evaluate(candidates)
+    parallel.set_workers(1)
+    whole = Evaluator(sc).evaluate(candidates)
+    assert [e.F for e in split] == [e.F for e in whole]
+    assert [e.G for e in split] == [e.G for e in whole]
+    assert [e.violations for e in split] == [e.violations for e in whole]
+    assert [e.titration.endpoint_mL if e.titration else None for e in split] == \
+        [e.titration.endpoint_mL if e.titration else None for e in whole]
