@@ -145,11 +145,15 @@ def references() -> dict[str, dict[str, str]]:
 
 # --- YAML documents ---------------------------------------------------------------------------------------
 
+_LOADER = getattr(yaml, "CSafeLoader", yaml.SafeLoader)  # libyaml's safe loader where PyYAML has it (the same
+#                                                           documents, about 20 times faster to read)
+
+
 @lru_cache(maxsize=None)
 def document(name: str) -> Any:
     """A YAML document from ``optimiser/data`` (safe loading), unchecked: see :func:`entries`."""
     try:
-        return yaml.safe_load(_text(name))
+        return yaml.load(_text(name), Loader=_LOADER)
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         where = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
