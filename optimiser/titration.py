@@ -430,9 +430,9 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
     live = [p for p in plans if p is not None]
     std = ([plan(standard_sample(sample), p.method, n_points, _reagents_only(p.carry), like=p) for p in live]
            if standardise else [])
-    done = _run(live + std, pH_drift, n_drift=len(live)) if live else []
+    done = _run(live + std, pH_drift, n_drift=len(live), n_full=len(live)) if live else []
     if std:
-        done = [replace(t, standardisation=s.endpoints[0]) for t, s in zip(done[:len(live)], done[len(live):])]
+        done = [replace(t, standardisation=s) for t, s in zip(done[:len(live)], done[len(live):])]
     results = iter(done)
     return [composite[k] if k in composite else next(results) for k in range(len(plans))]
 
@@ -449,9 +449,11 @@ def _reagents_only(carry: Carry | None) -> Carry | None:
     return Carry(0.0, kept) if kept else None
 
 
-def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
+def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int, n_full: int | None = None) -> list[Titration | EndPoint]:
     """The batched solves (coarse curves, refined end-point regions, finer where still coarse against the titre,
-    equivalence and end points), then the read-out of each titration (the pH drift of the first ``n_drift``)."""
+    equivalence and end points), then the read-out of each titration (the pH drift of the first ``n_drift``): the
+    whole :class:`Titration` of the first ``n_full`` (all by default), only the :class:`EndPoint` of the others (the
+    standards, of which nothing else is read)."""
     coarse = solve_batch(live, [p.V for p in live])
     refs = [p.method.strategy.reference(p, eq) for p, eq in zip(live, coarse)]
     fine_grids = [fine_grid(p, eq, ref) for p, eq, ref in zip(live, coarse, refs)]
@@ -472,8 +474,9 @@ def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int) -> list[Titration]:
     probed = solve_batch(live, probes, coarse)
     drifts = pH_drifts(live[:n_drift], coarse, V_eps) if pH_drift else []
     drifts += [None] * (len(live) - len(drifts))
-    return [_finish(p, c, f, g, pr, ref, v, d)
-            for p, c, f, g, pr, ref, v, d in zip(live, coarse, fine, fine_grids, probed, refs, V_eps, drifts)]
+    n_full = len(live) if n_full is None else n_full
+    return [_finish(p, c, f, g, pr, ref, v, d) if k < n_full else _endpoint_only(p, c, f, g, pr, ref, v)
+            for k, (p, c, f, g, pr, ref, v, d) in enumerate(zip(live, coarse, fine, fine_grids, probed, refs, V_eps, drifts))]
 
 
 def _sharpness_band(p: Plan, eq: Equilibrium, eqf: Equilibrium, grid: Array, ref: float) -> tuple[float | None, float | None]:
@@ -502,14 +505,28 @@ def _with_refined(p: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array
     return Vall[order], merge(eq, eqf, order), band
 
 
-def _endpoint_reads(p: Plan, eqp: Equilibrium, V_ep: float | None):
-    """Error, pM, indicator blank, co-titration and the error budget at the end point (point 1 of the probed solve)."""
-    if V_ep is None:
-        return None, {}, None, {}, {}
-    strategy = p.method.strategy
-    blank = readout.indicator_blank(eqp, 1, p.sample, p.method) if strategy.reads_release else None
-    return (strategy.error_percent(p, V_ep), _pM_at(eqp, 1, p.metals), blank,
-            readout.cotitrated(eqp, 1, p.sample, p.method), strategy.budget(p, eqp, 1, V_ep))
+def _endpoint(p: Plan, band: tuple[float | None, float | None], eqp: Equilibrium, V_ep: float | None,
+              fractions: dict) -> EndPoint:
+    """The end point as read: its volume, error, sharpness (from the 10 % / 90 % turned volumes ``band``), colour
+    change (from the indicator's ``fractions`` along the curve), pM and error budget (point 1 of the probed solve)."""
+    method, sample = p.method, p.sample
+    strategy, indicator = method.strategy, method.indicator_info
+    V10, V90 = band
+    error, pM_ep, budget = ((strategy.error_percent(p, V_ep), _pM_at(eqp, 1, p.metals), strategy.budget(p, eqp, 1, V_ep))
+                            if V_ep is not None else (None, {}, {}))
+    h_free = readout.dominant_free_form(fractions, strategy.free_form_point())
+    change = strategy.colour_change(indicator.complex_colour(strategy.complex_metal(method, sample)),
+                                    indicator.free_colour(h_free))
+    return EndPoint(label=", ".join(sample.analyte), volume_mL=V_ep, error_percent=error,
+                    sharpness_mL=None if (V10 is None or V90 is None) else abs(V90 - V10), colour_change=change,
+                    pM=pM_ep, budget=budget)
+
+
+def _endpoint_only(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | None, eqp: Equilibrium,
+                   ref: float, V_ep: float | None) -> EndPoint:
+    """The :class:`EndPoint` that :func:`_finish` would give, without the rest of the titration."""
+    _, eq, band = _with_refined(plan, eq, eqf, grid, ref)
+    return _endpoint(plan, band, eqp, V_ep, readout.indicator_forms(eq, plan.method, plan.metals)[0])
 
 
 def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | None, eqp: Equilibrium, ref: float,
@@ -524,9 +541,11 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     ep = 1 if V_ep is not None else 0  # index of the end point in the probed solve (0 is the equivalence)
     pM, bound_fraction = _curve_arrays(eq, method, metals)
     pM_eq = _pM_at(eqp, 0, metals)
-    error, pM_ep, blank, cotitrated, budget = _endpoint_reads(plan, eqp, V_ep)
-    sharp = None if (V10 is None or V90 is None) else abs(V90 - V10)
     fr, colours = readout.indicator_forms(eq, method, metals)
+    endpoint = _endpoint(plan, (V10, V90), eqp, V_ep, fr)
+    sharp = endpoint.sharpness_mL
+    blank = (readout.indicator_blank(eqp, 1, sample, method) if V_ep is not None and strategy.reads_release else None)
+    cotitrated = readout.cotitrated(eqp, 1, sample, method) if V_ep is not None else {}
     solids = {name: eq.solid_amount[:, j] for j, name in enumerate(system.solids) if np.any(eq.solid_amount[:, j] > 1e-12)}
     pre_start = tuple(eq.solids_present(0))
     pre_end = tuple(eqp.solids_present(ep))
@@ -539,11 +558,6 @@ def _finish(plan: Plan, eq: Equilibrium, eqf: Equilibrium | None, grid: Array | 
     found += _indicator_findings(plan, blocked, blank, sharp if V_ep is not None else None)
     found += _medium_findings(plan, eq.ionic_strength_M)
     usable = indicator.usable_pH[0] <= method.pH <= indicator.usable_pH[1]
-    h_free = readout.dominant_free_form(fr, strategy.free_form_point())
-    change = strategy.colour_change(indicator.complex_colour(strategy.complex_metal(method, sample)),
-                                    indicator.free_colour(h_free))
-    endpoint = EndPoint(label=", ".join(sample.analyte), volume_mL=V_ep, error_percent=error, sharpness_mL=sharp,
-                        colour_change=change, pM=pM_ep, budget=budget)
     return Titration(
         sample=sample, method=method, volume_mL=V, pM=pM, bound_fraction=bound_fraction, indicator_fractions=fr,
         indicator_colours=colours, turned=np.clip(strategy.turned(plan, eq, ref), -1.0, 2.0), pH=np.full(len(V), method.pH),
