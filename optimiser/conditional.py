@@ -158,7 +158,7 @@ def log_alpha_M_OH(metal: str, pH: ArrayLike, cond: Conditions = Conditions()) -
     return log_alpha_polynomial(log_h, cond.log_K(ks), [k.stoichiometry[H] for k in ks])
 
 
-def _ml_constants(metal: str, ligand: str) -> tuple[FormationConstant, ...]:
+def ml_constants(metal: str, ligand: str) -> tuple[FormationConstant, ...]:
     return tuple(k for k in database().complexes.get((metal, ligand), ()) if H not in k.stoichiometry)
 
 
@@ -178,7 +178,7 @@ def log_alpha_M_L(metal: str, ligand: str, C_L: ArrayLike, pH: ArrayLike, cond: 
     metal = db.metal(metal)
     C_L = check_concentration(C_L, f"total {ligand}")
     log_L = np.log10(np.maximum(C_L, 1e-300)) - log_alpha_ligand_H(ligand, pH, cond)
-    ks = _ml_constants(metal, ligand)
+    ks = ml_constants(metal, ligand)
     if not ks:
         return np.zeros_like(log_L)
     out = log_alpha_polynomial(log_L, cond.log_K(ks), [k.stoichiometry[ligand] for k in ks])
@@ -283,7 +283,7 @@ def conditional_constant(metal: str, titrant: str, pH: ArrayLike, ligands: Mappi
     pH = check_pH(pH)
     used = [main, *side, *db.protonation[titrant], *db.hydrolysis.get(metal, ())]
     for lig in ligands or {}:
-        used += list(_ml_constants(metal, lig)) + list(db.protonation.get(lig, ()))
+        used += list(ml_constants(metal, lig)) + list(db.protonation.get(lig, ()))
     for ion in alkali or {}:
         used += list(db.complexes.get((db.metal(ion), titrant), ()))
     T = float(np.max(np.asarray(cond.temperature_C)))

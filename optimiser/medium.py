@@ -222,7 +222,23 @@ def _recipe_ions(sample: Sample, method: Method, I: float) -> tuple[list[tuple[s
 def medium(sample: Sample, method: Method) -> Medium:
     """The medium of ``method`` applied to ``sample``: counter-ions, spectator anions and background, with the
     ionic strength of the aliquot as prepared estimated by a few fixed-point passes (the buffer's forms and the free
-    hydroxide depend on it)."""
+    hydroxide depend on it). Remembered by what it is computed from (a search asks for the same one several times
+    per candidate: its titration, its standard's, its side reactions)."""
+    key = (sample.ionic_strength_M, sample.temperature_C, tuple(sample.metals.items()), tuple(sample.alkali_M.items()),
+           sample.acid_M, method.pH, method.buffer, method.buffer_total_M, method.masking, method.titrant)
+    found = _MEDIA.get(key)
+    if found is None:
+        if len(_MEDIA) >= MEDIA_REMEMBERED:
+            _MEDIA.clear()
+        found = _MEDIA[key] = _medium(sample, method)
+    return found
+
+
+MEDIA_REMEMBERED = 20_000  # media kept by medium() (a few kB each) before the memory starts afresh
+_MEDIA: dict[tuple, Medium] = {}
+
+
+def _medium(sample: Sample, method: Method) -> Medium:
     background = sample.ionic_strength_M
     I = background
     for _ in range(ESTIMATE_PASSES):

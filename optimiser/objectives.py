@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .conditional import Conditions, conditional_constant, feasibility
+from .conditional import Conditions, conditional_constant, feasibility, ml_constants
 from .errors import InputError, MissingConstantError
 from .medium import side_reactions
 from .reagents import HAZARD_NAMES, catalogue
@@ -298,7 +298,7 @@ def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) ->
     def log_cK(metal: str, conc: float) -> float:
         if conc <= 0:
             return -math.inf
-        k = _log_K_conditional(metal, c.titrant, float(c.pH), ligands, float(cond.ionic_strength_M),
+        k = _log_K_conditional(metal, c.titrant, float(c.pH), _binding(metal, ligands), float(cond.ionic_strength_M),
                                float(cond.temperature_C), tuple(sorted(alkali.items())))
         return float(feasibility(k, conc))
 
@@ -320,6 +320,17 @@ def selectivity_margin(scenario: Scenario, c: Candidate, t: Titration | None) ->
 
 
 TABLE_IONIC_STRENGTH_M = 0.1  # where no method is chosen: the ionic strength of the handbook tables (common practice)
+
+
+def _binding(metal: str, ligands: tuple[tuple[str, float], ...]) -> tuple[tuple[str, float], ...]:
+    """The ligand totals of a method that bind ``metal`` (a ligand with no constant with it leaves its alpha_M as it
+    is), so that methods differing only in agents the metal ignores share one memoised log K'."""
+    return tuple((lig, x) for lig, x in ligands if _binds(metal, lig))
+
+
+@lru_cache(maxsize=None)
+def _binds(metal: str, ligand: str) -> bool:
+    return bool(ml_constants(metal, ligand))
 
 
 @lru_cache(maxsize=50_000)
