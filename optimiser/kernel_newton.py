@@ -73,11 +73,18 @@ def _dissolve_negative(W, s):
 
 @njit(cache=True)
 def _kkt(nu_s, act, sol, bal, kkt):
-    """The KKT system of the active set of solids in kkt.M, kkt.rhs, mass-balance rows divided by bal.scale."""
+    """The KKT system of the active set of solids in kkt.M[:N, :N] and kkt.rhs[:N], mass-balance rows divided by
+    bal.scale: the n components, then the active solids in their order (N = n + their number, returned). An
+    inactive solid has no row or column (in the full system it would be an identity row and a zero column, which
+    change nothing of the step)."""
     J, R, scale, M, rhs, W, SI = kkt.J, bal.R, bal.scale, kkt.M, kkt.rhs, sol.W, sol.SI
     n = len(R)
     P = nu_s.shape[0]
-    M[:, :] = 0.0
+    N = n
+    for p in range(P):
+        if W[p]:
+            N += 1
+    M[:N, :N] = 0.0
     for i in range(n):
         if act[i]:
             for j in range(n):
@@ -87,27 +94,27 @@ def _kkt(nu_s, act, sol, bal, kkt):
         else:  # an absent component keeps its value: identity row and column
             M[i, i] = 1.0
             rhs[i] = 0.0
+    q = n
     for p in range(P):
         if W[p]:
             for i in range(n):
                 if act[i]:
-                    M[i, n + p] = nu_s[p, i] / scale[i]
-                    M[n + p, i] = nu_s[p, i]
-            rhs[n + p] = -SI[p]
-        else:
-            M[n + p, n + p] = 1.0
-            rhs[n + p] = 0.0
+                    M[i, q] = nu_s[p, i] / scale[i]
+                    M[q, i] = nu_s[p, i]
+            rhs[q] = -SI[p]
+            q += 1
+    return N
 
 
 @njit(cache=True, inline="always")
 def _newton_direction(nu_s, act, sol, bal, kkt):
     """The Newton step kkt.dx from the KKT system of the active set (least squares where it is singular)."""
     M, rhs, dx = kkt.M, kkt.rhs, kkt.dx
-    _kkt(nu_s, act, sol, bal, kkt)
-    if not _gauss(M, rhs, len(rhs)):  # singular (a degenerate active set): least squares
+    N = _kkt(nu_s, act, sol, bal, kkt)
+    if not _gauss(M, rhs, N):  # singular (a degenerate active set): least squares
         _kkt(nu_s, act, sol, bal, kkt)
-        sol_ = np.linalg.lstsq(M, rhs)[0]
-        rhs[:] = sol_
+        sol_ = np.linalg.lstsq(M[:N, :N], rhs[:N])[0]
+        rhs[:N] = sol_
     for i in range(len(dx)):
         dx[i] = rhs[i] if act[i] else 0.0
 
