@@ -318,28 +318,22 @@ def _kernel_inputs(system: ChemicalSystem, cond: _Conditions) -> _KernelInputs:
     B, C = cond.totals.shape
     iH = system.index(H)
     free_pH = cond.pH is None
-    unknown = list(range(C)) if free_pH else [i for i in range(C) if i != iH]
-    nu = system.nu.astype(float)
-    nu_s_all = system.nu_solid.astype(float)
-    P = nu_s_all.shape[0] if opts.include_solids else 0
+    P = system.nu_solid.shape[0] if opts.include_solids else 0
+    unknown, stoichiometry, nu_s, hco_s, w_species, w_solids = _stoichiometry(system, free_pH, P)
     # water activity enters once per H2O consumed, i.e. once per H+ released (hydroxo species and solids)
     shift_w = np.broadcast_to(np.asarray(opts.log_Kw_shift, dtype=float), (B,))[:, None]
-    K0, Ks0 = system.log_K(np.zeros(B), cond.temperature_C, opts.A)
-    K0 = K0 + np.maximum(-nu[:, iH], 0.0)[None, :] * shift_w
-    Ks0 = Ks0 + np.maximum(-nu_s_all[:, iH], 0.0)[None, :] * shift_w
-    dz2, dz2_s = system.charge_terms
-    hco = np.zeros(len(nu)) if free_pH else nu[:, iH].copy()
-    hco_s = np.zeros(len(nu_s_all)) if free_pH else nu_s_all[:, iH].copy()
-    nu_u, nu_s = nu[:, unknown], nu_s_all[:, unknown]
+    temp = cond.temperature_C
+    if opts.A is None and B and (temp == temp[0]).all():  # one temperature (a curve): its row, remembered
+        k0, ks0 = system.log_K_zero(float(temp[0]))
+        K0, Ks0 = np.broadcast_to(k0, (B, len(k0))), np.broadcast_to(ks0, (B, len(ks0)))
+    else:
+        K0, Ks0 = system.log_K(np.zeros(B), temp, opts.A)
+    K0 = K0 + w_species[None, :] * shift_w
+    Ks0 = Ks0 + w_solids[None, :] * shift_w
     T = cond.totals[:, unknown]
     present = np.ascontiguousarray(T > 0)
     if free_pH:
         present[:, unknown.index(iH)] = True
-    ptr, col, val = _csr(nu_u)
-    stoichiometry = kernel.Stoichiometry(
-        nu_ptr=ptr, nu_col=col, nu_val=val, nmax=np.maximum(np.where(nu_u > 0, nu_u, 0.0).max(axis=0, initial=0.0), 1.0),
-        nu_solid=_f64(nu_s[:P]), z2=system.charge_squared, dz2=_f64(dz2), dz2_solid=_f64(dz2_s[:P]), h=_f64(hco),
-        h_solid=_f64(hco_s[:P]))
     points = kernel.Points(
         log_K0=_f64(K0), log_Ks0=_f64(Ks0[:, :P]).reshape(B, P), davies_A=_f64(cond.davies_A),
         pH_term=_f64(np.zeros(B) if free_pH else -cond.pH), totals=_f64(T), ionic_strength=_f64(cond.ionic_strength_M),
@@ -349,6 +343,31 @@ def _kernel_inputs(system: ChemicalSystem, cond: _Conditions) -> _KernelInputs:
                              max_iter=int(MAX_ITER))
     return _KernelInputs(stoichiometry=stoichiometry, points=points, options=options, unknown=unknown, nu_solid=nu_s,
                          log_Ks0=Ks0, h_solid=hco_s)
+
+
+def _stoichiometry(system: ChemicalSystem, free_pH: bool, P: int):
+    """What the kernel takes of the system alone, remembered per system, pH fixed or free, and solids allowed:
+    (the unknown components, :class:`kernel.Stoichiometry`, the solids' stoichiometry in the unknowns, their H+
+    coefficients, and the water-activity weights of the species and of the solids). The kernel only reads them."""
+    key = ("stoichiometry", free_pH, P)
+    memo = system.kernel_memo
+    if key not in memo:
+        C = len(system.components)
+        iH = system.index(H)
+        unknown = list(range(C)) if free_pH else [i for i in range(C) if i != iH]
+        nu = system.nu.astype(float)
+        nu_s_all = system.nu_solid.astype(float)
+        dz2, dz2_s = system.charge_terms
+        hco = np.zeros(len(nu)) if free_pH else nu[:, iH].copy()
+        hco_s = np.zeros(len(nu_s_all)) if free_pH else nu_s_all[:, iH].copy()
+        nu_u, nu_s = nu[:, unknown], nu_s_all[:, unknown]
+        ptr, col, val = _csr(nu_u)
+        stoichiometry = kernel.Stoichiometry(
+            nu_ptr=ptr, nu_col=col, nu_val=val, nmax=np.maximum(np.where(nu_u > 0, nu_u, 0.0).max(axis=0, initial=0.0), 1.0),
+            nu_solid=_f64(nu_s[:P]), z2=system.charge_squared, dz2=_f64(dz2), dz2_solid=_f64(dz2_s[:P]), h=_f64(hco),
+            h_solid=_f64(hco_s[:P]))
+        memo[key] = (unknown, stoichiometry, nu_s, hco_s, np.maximum(-nu[:, iH], 0.0), np.maximum(-nu_s_all[:, iH], 0.0))
+    return memo[key]
 
 
 def _run_kernel(stoichiometry: kernel.Stoichiometry, points: kernel.Points, options: kernel.Options,

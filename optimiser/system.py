@@ -94,6 +94,15 @@ class ChemicalSystem:
         ls = ls0 + Af * solid_table[1][None, :]
         return lk.reshape(I.shape + (-1,)), ls.reshape(I.shape + (-1,))
 
+    def log_K_zero(self, temperature_C: float) -> tuple[Array, Array]:
+        """log10 constants of the species (S,) and the solids (P,) at I = 0 and one temperature [degC] (the default
+        Davies A): what :meth:`log_K` gives at I = 0 (its Davies term is then zero), remembered with it."""
+        key = (float(temperature_C), -1.0)
+        if key not in self._log_K_memo:
+            self.log_K(np.zeros(1), np.array([float(temperature_C)]))
+        lk0, ls0, _ = self._log_K_memo[key]
+        return lk0, ls0
+
     @cached_property
     def charge_terms(self) -> tuple[Array, Array]:
         """Davies charge terms dz2 of the species (0 for the free components) and of the solids."""
@@ -105,6 +114,11 @@ class ChemicalSystem:
     @cached_property
     def charge_squared(self) -> Array:
         return np.ascontiguousarray(self.charge.astype(float) ** 2)
+
+    @cached_property
+    def kernel_memo(self) -> dict:
+        """What :mod:`optimiser.equilibrium` derives from the system alone for the kernel, by its own keys."""
+        return {}
 
     @cached_property
     def _log_K_memo(self) -> dict[tuple[float, float], tuple[Array, Array, float]]:
