@@ -73,34 +73,44 @@ def _dissolve_negative(W, s):
 
 @njit(cache=True)
 def _kkt(nu_s, act, sol, bal, kkt):
-    """The KKT system of the active set of solids in kkt.M[:N, :N] and kkt.rhs[:N], mass-balance rows divided by
-    bal.scale: the n components, then the active solids in their order (N = n + their number, returned). An
-    inactive solid has no row or column (in the full system it would be an identity row and a zero column, which
-    change nothing of the step)."""
+    """The KKT system of the components present and the active solids in kkt.M[:N, :N] and kkt.rhs[:N], mass-balance
+    rows divided by bal.scale: the components present in their order, then the active solids in theirs (N, returned).
+
+    An absent component and an inactive solid have no row or column: in the full system each would be an identity
+    row and a zero column, which change nothing of the step (Gaussian elimination never pivots on them, and they
+    add nothing to the other rows), so the step is the same to the last bit.
+    """
     J, R, scale, M, rhs, W, SI = kkt.J, bal.R, bal.scale, kkt.M, kkt.rhs, sol.W, sol.SI
     n = len(R)
     P = nu_s.shape[0]
-    N = n
+    N = 0
+    for i in range(n):
+        if act[i]:
+            N += 1
+    m = N
     for p in range(P):
         if W[p]:
             N += 1
     M[:N, :N] = 0.0
+    ic = 0
     for i in range(n):
         if act[i]:
+            jc = 0
             for j in range(n):
                 if act[j]:
-                    M[i, j] = J[i, j] / scale[i]
-            rhs[i] = -R[i] / scale[i]
-        else:  # an absent component keeps its value: identity row and column
-            M[i, i] = 1.0
-            rhs[i] = 0.0
-    q = n
+                    M[ic, jc] = J[i, j] / scale[i]
+                    jc += 1
+            rhs[ic] = -R[i] / scale[i]
+            ic += 1
+    q = m
     for p in range(P):
         if W[p]:
+            ic = 0
             for i in range(n):
                 if act[i]:
-                    M[i, q] = nu_s[p, i] / scale[i]
-                    M[q, i] = nu_s[p, i]
+                    M[ic, q] = nu_s[p, i] / scale[i]
+                    M[q, ic] = nu_s[p, i]
+                    ic += 1
             rhs[q] = -SI[p]
             q += 1
     return N
@@ -108,15 +118,21 @@ def _kkt(nu_s, act, sol, bal, kkt):
 
 @njit(cache=True, inline="always")
 def _newton_direction(nu_s, act, sol, bal, kkt):
-    """The Newton step kkt.dx from the KKT system of the active set (least squares where it is singular)."""
+    """The Newton step kkt.dx from the KKT system of the active set (least squares where it is singular); zero for
+    an absent component."""
     M, rhs, dx = kkt.M, kkt.rhs, kkt.dx
     N = _kkt(nu_s, act, sol, bal, kkt)
     if not _gauss(M, rhs, N):  # singular (a degenerate active set): least squares
         _kkt(nu_s, act, sol, bal, kkt)
         sol_ = np.linalg.lstsq(M[:N, :N], rhs[:N])[0]
         rhs[:N] = sol_
+    ic = 0
     for i in range(len(dx)):
-        dx[i] = rhs[i] if act[i] else 0.0
+        if act[i]:
+            dx[i] = rhs[ic]
+            ic += 1
+        else:
+            dx[i] = 0.0
 
 
 @njit(cache=True, inline="always")
