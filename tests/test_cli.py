@@ -215,6 +215,17 @@ def test_python_dash_m(tmp_path):
     r = subprocess.run([sys.executable, "-m", "optimiser", "conditional", "Mg", "--pH", "10", "--json"], capture_output=True,
                        text=True, cwd=tmp_path)
     assert r.returncode == 0 and json.loads(r.stdout)["metal"] == "Mg"
+    # the command leaves with os._exit (cli.command): its exit status and its flushed output are kept
+    r = subprocess.run([sys.executable, "-m", "optimiser", "conditional", "Mg", "--pH", "15"], capture_output=True,
+                       text=True, cwd=tmp_path)
+    assert r.returncode == 2 and "pH" in r.stderr and len(r.stderr.strip().splitlines()) == 1
+
+
+def test_run_jobs_must_be_a_whole_number(capsys):
+    """--jobs takes 1-256 processes; anything else stops before any search, saying what is allowed."""
+    for bad in ("0", "2.5", "many"):
+        code, _, err = run(capsys, "run", "--jobs", bad)
+        assert code == 2 and "--jobs must be a whole number from 1 to 256" in err
 
 
 def test_run_format_option_lists_the_formats(capsys):
