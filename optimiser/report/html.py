@@ -28,8 +28,11 @@ def _env():
     return env
 
 
-FIGURE_SHARES = (("pareto", "conditional"), ("budget", "titration", "speciation", "robustness"))  # the figures drawn
-#   in each of two processes (measured on the demo: the Pareto panels take about as long as the four others)
+FIGURES_ALWAYS = ("conditional", "pareto")  # figures of figures.py (<name>_figure), in the page's order
+FIGURES_OF_A_METHOD = ("budget", "titration", "speciation", "robustness")  # ... drawn where a method is shown
+FIGURE_SHARES = (("pareto", "conditional", "budget"), ("titration", "speciation", "robustness"))  # the figures drawn
+#   in each of two processes (measured on the demo: 0.57-0.60 s for both, against 0.68-0.77 s with the budget in the
+#   second share and 0.72-0.88 s with the Pareto panels and the budget alone in the first)
 
 
 def _figures(analysis: Analysis) -> dict[str, str]:
@@ -37,7 +40,7 @@ def _figures(analysis: Analysis) -> dict[str, str]:
     drawing is the report's largest cost; the SVG does not depend on the process, see :mod:`optimiser.report.figures`)."""
     from .. import parallel
     from . import figures  # matplotlib is loaded only when a page is drawn
-    names = [n for n in ("conditional", "pareto") + FIGURE_SHARES[1] if analysis.method is not None or n in FIGURE_SHARES[0]]
+    names = FIGURES_ALWAYS + (FIGURES_OF_A_METHOD if analysis.method is not None else ())
     draw = {n: getattr(figures, f"{n}_figure") for n in names}
 
     def drawn(part: tuple[str, ...]) -> list[str]:
