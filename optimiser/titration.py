@@ -453,10 +453,15 @@ def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int, n_full: int | None 
     """The batched solves (coarse curves, refined end-point regions, finer where still coarse against the titre,
     equivalence and end points), then the read-out of each titration (the pH drift of the first ``n_drift``): the
     whole :class:`Titration` of the first ``n_full`` (all by default), only the :class:`EndPoint` of the others (the
-    standards, of which nothing else is read)."""
+    standards of the first ones, in their order, of which nothing else is read). A standard whose titration shows no
+    end point on its coarse curve is read no further: with no end point there is nothing to standardise."""
+    n_full = len(live) if n_full is None else n_full
     coarse = solve_batch(live, [p.V for p in live])
     refs = [p.method.strategy.reference(p, eq) for p, eq in zip(live, coarse)]
     fine_grids = [fine_grid(p, eq, ref) for p, eq, ref in zip(live, coarse, refs)]
+    for k in range(n_full, len(live)):
+        if fine_grids[k - n_full] is None:
+            fine_grids[k] = None
     fine = solve_batch(live, fine_grids, coarse)
     V_eps = [end_point(p, g, eqf, ref) if eqf is not None else None
              for p, g, eqf, ref in zip(live, fine_grids, fine, refs)]
@@ -474,7 +479,6 @@ def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int, n_full: int | None 
     probed = solve_batch(live, probes, coarse)
     drifts = pH_drifts(live[:n_drift], coarse, V_eps) if pH_drift else []
     drifts += [None] * (len(live) - len(drifts))
-    n_full = len(live) if n_full is None else n_full
     return [_finish(p, c, f, g, pr, ref, v, d) if k < n_full else _endpoint_only(p, c, f, g, pr, ref, v)
             for k, (p, c, f, g, pr, ref, v, d) in enumerate(zip(live, coarse, fine, fine_grids, probed, refs, V_eps, drifts))]
 
