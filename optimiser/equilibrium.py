@@ -69,9 +69,13 @@ class Equilibrium:
 
     def bound(self, component: str, partner: str) -> Array:
         """Concentration of ``component`` held in species that also contain ``partner`` [mol/L]."""
-        i, j = self.system.index(component), self.system.index(partner)
-        nu = self.system.nu
-        return self.c @ (nu[:, i] * (nu[:, j] > 0))
+        key = ("bound", component, partner)
+        weights = self.system.memo.get(key)
+        if weights is None:
+            i, j = self.system.index(component), self.system.index(partner)
+            nu = self.system.nu
+            weights = self.system.memo[key] = nu[:, i] * (nu[:, j] > 0)
+        return self.c @ weights
 
     def in_solids(self, component: str) -> Array:
         i = self.system.index(component)
@@ -350,7 +354,7 @@ def _stoichiometry(system: ChemicalSystem, free_pH: bool, P: int):
     (the unknown components, :class:`kernel.Stoichiometry`, the solids' stoichiometry in the unknowns, their H+
     coefficients, and the water-activity weights of the species and of the solids). The kernel only reads them."""
     key = ("stoichiometry", free_pH, P)
-    memo = system.kernel_memo
+    memo = system.memo
     if key not in memo:
         C = len(system.components)
         iH = system.index(H)

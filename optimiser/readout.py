@@ -119,6 +119,18 @@ def _category(ligands: Sequence[str], is_free: bool, method: Method, mask_ligand
     return None
 
 
+def _holders(system, metal: str) -> list[tuple[int, object, list[str], bool]]:
+    """The species that hold ``metal``, in the system's order: (index, its coefficient, its other components but H+,
+    whether it is the free ion); remembered per system."""
+    key = ("holders", metal)
+    memo = system.memo
+    if key not in memo:
+        i = system.index(metal)
+        memo[key] = [(k, row[i], [c for c, v in zip(system.components, row) if v > 0 and c != metal and c != H], sp == metal)
+                     for k, (sp, row) in enumerate(zip(system.species, system.nu)) if row[i] > 0]
+    return memo[key]
+
+
 def speciation(eq: Equilibrium, point: int, prep: Prepared, method: Method, metals: Sequence[str],
                anions: Mapping[str, float] | None = None) -> dict[str, dict[str, float]]:
     """Where each metal is at one point, as shares of its total: free, titrant, indicator, masking, buffer, hydroxo,
@@ -126,17 +138,15 @@ def speciation(eq: Equilibrium, point: int, prep: Prepared, method: Method, meta
     s = eq.system
     mask_ligs = {agent.ligand for agent in method.masking_agents}
     out: dict[str, dict[str, float]] = {}
+    c = eq.c[point]
     for m in metals:
         i = s.index(m)
         tot = eq.totals[point, i] + 0.0
         parts = dict.fromkeys(CATEGORIES, 0.0)
-        for sp, row, conc in zip(s.species, s.nu, eq.c[point]):
-            if row[i] <= 0:
-                continue
-            ligs = [c for c, v in zip(s.components, row) if v > 0 and c != m and c != H]
-            cat = _category(ligs, sp == m, method, mask_ligs, anions)
+        for k, n, ligs, free in _holders(s, m):
+            cat = _category(ligs, free, method, mask_ligs, anions)
             if cat is not None:
-                parts[cat] += row[i] * conc
+                parts[cat] += n * c[k]
         parts["solid"] = float(eq.solid_amount[point] @ s.nu_solid[:, i]) if s.solids else 0.0
         total_all = tot + prep.masked_by_assumption.get(m, 0.0)
         if total_all <= 0:

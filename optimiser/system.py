@@ -116,8 +116,9 @@ class ChemicalSystem:
         return np.ascontiguousarray(self.charge.astype(float) ** 2)
 
     @cached_property
-    def kernel_memo(self) -> dict:
-        """What :mod:`optimiser.equilibrium` derives from the system alone for the kernel, by its own keys."""
+    def memo(self) -> dict:
+        """What the solver (:mod:`optimiser.equilibrium`) and the read-out derive from the system alone, by their own
+        keys (a tuple whose first item names what it is)."""
         return {}
 
     @cached_property
