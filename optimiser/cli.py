@@ -366,6 +366,7 @@ def _solver_ready() -> None:
         warm_up()
     finally:
         timer.cancel()
+        timer.join()  # no thread left when the search forks its workers
 
 
 def _simulate_buffer(a, pH: float):

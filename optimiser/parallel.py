@@ -7,7 +7,9 @@ back pickled through a pipe. The first chunk runs here meanwhile. Nothing the ch
 comes back: only the results. A result never depends on how the work was split (each candidate and each figure is
 computed on its own; ``tests/test_parallel.py`` compares the split and the whole).
 
-Where ``os.fork`` does not exist, or one process is asked for, the chunks run here one after the other.
+Only on Linux (where forking a process that holds numpy, numba and matplotlib is the usual practice; macOS makes
+spawning the default because some of its system libraries do not survive a fork), and where one process is asked for,
+the chunks run here one after the other.
 """
 from __future__ import annotations
 
@@ -32,10 +34,15 @@ def available_cores() -> int:
         return os.cpu_count() or 1
 
 
+def can_fork() -> bool:
+    """True where chunks may run in forked processes (Linux)."""
+    return hasattr(os, "fork") and sys.platform.startswith("linux")
+
+
 def workers() -> int:
     """Processes a split uses: what :func:`set_workers` set, else the available cores up to :data:`WORKERS_MAX`;
-    1 where the system cannot fork."""
-    if not hasattr(os, "fork"):
+    1 where the system cannot fork (:func:`can_fork`)."""
+    if not can_fork():
         return 1
     return _workers if _workers is not None else max(1, min(available_cores(), WORKERS_MAX))
 
@@ -69,7 +76,7 @@ def fork_map(fn: Callable[[T], R], chunks: Sequence[T]) -> list[R]:
     Within a split nothing splits further (a chunk that asks for :func:`workers` gets 1). An exception raised in a
     child is raised here (after every child has ended); where a child cannot be forked, its chunk runs here.
     """
-    if len(chunks) <= 1 or not hasattr(os, "fork") or workers() <= 1:
+    if len(chunks) <= 1 or workers() <= 1:
         return [fn(c) for c in chunks]
     sys.stdout.flush()
     sys.stderr.flush()

@@ -9,7 +9,7 @@ from optimiser.scenario import demo
 from optimiser.structures import enumerate_structures
 from optimiser.survey import Survey
 
-needs_fork = pytest.mark.skipif(not hasattr(os, "fork"), reason="no os.fork on this system: every split runs in turn")
+needs_fork = pytest.mark.skipif(not parallel.can_fork(), reason="no forking here (Linux only): every split runs in turn")
 
 
 @pytest.fixture
