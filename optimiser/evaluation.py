@@ -14,7 +14,7 @@ from .titration import Titration, simulate_many
 SEARCH_POINTS = 41  # coarse curve points per candidate during the search (the recommendation is re-run finer)
 SIMULATION = {"standardise": True, "pH_drift": True}  # what every candidate's criteria need
 PARALLEL_MIN = 8  # candidates per process at least before a batch is split over processes (:mod:`optimiser.parallel`;
-#                   measured: one costs 10-15 ms to simulate and score, a fork and its pickled results about 30 ms)
+#                   measured on the demo: a candidate costs 6-15 ms to simulate and score, a fork 8-15 ms)
 SIMULATION_FAILURES = {"missing_constant", "inapplicable", "not_converged"}  # kinds of a simulation that failed
 
 

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import os
 import pickle
+import signal
 import sys
 from collections.abc import Callable, Sequence
 from typing import TypeVar
@@ -74,7 +75,8 @@ def fork_map(fn: Callable[[T], R], chunks: Sequence[T]) -> list[R]:
     """``[fn(c) for c in chunks]``, the first chunk here and each other in a forked child process.
 
     Within a split nothing splits further (a chunk that asks for :func:`workers` gets 1). An exception raised in a
-    child is raised here (after every child has ended); where a child cannot be forked, its chunk runs here.
+    child is raised here (after every child has ended); one raised by the first chunk stops the children first. Where
+    a child cannot be forked, its chunk runs here.
     """
     if len(chunks) <= 1 or workers() <= 1:
         return [fn(c) for c in chunks]
@@ -114,6 +116,13 @@ def fork_map(fn: Callable[[T], R], chunks: Sequence[T]) -> list[R]:
     set_workers(1)  # the cores are taken: this chunk, too, splits nothing further
     try:
         results: list = [fn(chunks[0])]
+    except BaseException:  # the children's results are not wanted: they are stopped and reaped, not left behind
+        for child in children:
+            if child is not None:
+                os.kill(child[0], signal.SIGKILL)
+                os.close(child[1])
+                os.waitpid(child[0], 0)
+        raise
     finally:
         set_workers(before)
     failure: BaseException | None = None

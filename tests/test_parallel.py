@@ -49,6 +49,27 @@ def test_an_exception_in_a_child_is_raised_here(two_workers):
         parallel.fork_map(fails_in_second, [0, 1])
 
 
+@needs_fork
+def test_a_failing_first_chunk_stops_and_reaps_the_children(two_workers, tmp_path):
+    import time
+    pid_file = tmp_path / "child.pid"
+
+    def first_fails(c):
+        if c == 1:  # the child: says who it is, then would run long after the failure
+            pid_file.write_text(str(os.getpid()))
+            time.sleep(60)
+            return c
+        for _ in range(600):  # here: fail once the child is running
+            if pid_file.exists() and pid_file.read_text():
+                break
+            time.sleep(0.05)
+        raise KeyError("chunk 0 failed")
+    with pytest.raises(KeyError, match="chunk 0 failed"):
+        parallel.fork_map(first_fails, [0, 1])
+    with pytest.raises(ProcessLookupError):  # the child was stopped and reaped, not left running
+        os.kill(int(pid_file.read_text()), 0)
+
+
 def test_one_worker_runs_every_chunk_here():
     parallel.set_workers(1)
     try:
