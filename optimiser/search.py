@@ -205,13 +205,12 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 20, n_gen: int
             notes.append(note)
     alts = tuple(Alternative(e, strategy_of(e)) for e in front)
 
-    def last(part: str):  # the recommendation's robustness, and the listed methods, side by side where cores allow
-        if part == "robustness":
-            return robustness(scenario, chosen) if chosen is not None and with_robustness else None
-        return compare(scenario, [a.evaluation for a in alts], chosen, with_robustness)
-    parts = ("robustness", "listed") if scenario.methods else ("robustness",)
-    scans, *listed_ = parallel.fork_map(last, parts) if len(parts) > 1 else [last(parts[0])]
-    listed = listed_[0] if listed_ else ()
+    # the recommendation's robustness, and the listed methods, side by side where cores allow
+    tasks = [lambda: robustness(scenario, chosen) if chosen is not None and with_robustness else None]
+    if scenario.methods:
+        tasks.append(lambda: compare(scenario, [a.evaluation for a in alts], chosen, with_robustness))
+    scans, *rest = parallel.fork_map(lambda task: task(), tasks)
+    listed = rest[0] if rest else ()
     if scans is not None:
         pH_w, doses, scan_pH, scan_dose = scans
     report(4)

@@ -66,7 +66,7 @@ def test_summary_numbers_equal_the_result(written, result):
     assert rec["predicted_error_percent"] == pytest.approx(t.error_percent, abs=1e-4)
     assert sum(rec["error_budget"].values()) == pytest.approx(t.error_percent, abs=1e-3)
     # the causes added by magnitude beside the net error: never less than it, and shown in the headline and JSON
-    assert rec["error_by_cause_percent"] == pytest.approx(t.error_by_cause_percent, abs=1e-4)
+    assert rec["error_by_cause_percent"] == pytest.approx(t.error_by_cause_percent, abs=1e-4)  # JSON keeps 4 decimals
     assert t.error_by_cause_percent >= abs(t.standardised_error_percent) - 1e-9
     assert f"its causes added by magnitude {t.error_by_cause_percent:.2f} %" in html
     assert f"pH {result.recommended.candidate.pH:.2f}<" in html  # the headline pH to 0.01, as the procedure gives it

@@ -45,8 +45,7 @@ def _figures(analysis: Analysis) -> dict[str, str]:
 
     def drawn(part: tuple[str, ...]) -> list[str]:
         return [draw[n](analysis) for n in part]
-    shares = [tuple(n for n in share if n in draw) for share in FIGURE_SHARES]
-    shares = [s for s in shares if s] if parallel.workers() > 1 else [tuple(names)]
+    shares = [part for part in (tuple(n for n in share if n in draw) for share in FIGURE_SHARES) if part]
     svg = dict(zip([n for s in shares for n in s], [x for part in parallel.fork_map(drawn, shares) for x in part]))
     return {n: svg[n] for n in names}
 
