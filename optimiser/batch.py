@@ -83,9 +83,11 @@ def run_one(path: str, out_dir: str, seed: int, base: str | None = None,
     from .decision import strategy_of
     from .scenario import load
     from .search import run_search
+    from . import parallel
     t0 = time.perf_counter()
     name = Path(path).stem
     try:
+        report.prepare(report.parse_formats(report_format))
         sc = load(path)
         name = sc.name
         result = run_search(sc, seed=seed)
@@ -107,6 +109,8 @@ def run_one(path: str, out_dir: str, seed: int, base: str | None = None,
     except Exception as exc:  # a bug must not stop the other scenarios; it is reported with its type
         tb = traceback.format_exception_only(type(exc), exc)[-1].strip()
         return BatchRow(path, name, False, message=f"internal error: {tb}", seconds=time.perf_counter() - t0)
+    finally:
+        parallel.dismiss()  # a standby for the figures of a report never written
 
 
 def _fmt(x, nd=2) -> str:

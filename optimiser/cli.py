@@ -485,12 +485,13 @@ def _cmd_run(a) -> int:
     from .results import dumps, to_json, writable_folder
     from .search import run_search
     from .strategies import strategy
-    sc = _load_scenario(a.scenario)
     seed = _integer(a.seed, "--seed", 0, 2 ** 31 - 1)
     if a.jobs is not None:  # for this command only (main restores the default)
         parallel.set_workers(_integer(a.jobs, "--jobs", 1, 256))
     formats = report.parse_formats(a.format or [report.DEFAULT_FORMAT])
     writable_folder(Path(a.out), "--out")  # before the search, not after it
+    report.prepare(formats)  # the figures' libraries load meanwhile, in a process of their own
+    sc = _load_scenario(a.scenario)
     tty = sys.stderr.isatty()
     _solver_ready()
     name = printable(sc.name)
@@ -641,6 +642,7 @@ def main(argv: Sequence[str] | None = None) -> int:
               "traceback", file=sys.stderr)
         return 1
     finally:
+        parallel.dismiss()
         parallel.set_workers(None)
 
 

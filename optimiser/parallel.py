@@ -7,12 +7,17 @@ back pickled through a pipe. The first chunk runs here meanwhile. Nothing the ch
 comes back: only the results. A result never depends on how the work was split (each candidate and each figure is
 computed on its own; ``tests/test_parallel.py`` compares the split and the whole).
 
+A piece of work whose libraries take long to load (the report's figures: matplotlib) can have a process forked for it
+ahead of time, a :class:`Standby`, which loads them while this process goes on with the search, then takes the work
+when it comes and hands it to :func:`fork_map` there.
+
 Only on Linux (where forking a process that holds numpy, numba and matplotlib is the usual practice; macOS makes
 spawning the default because some of its system libraries do not survive a fork), and where one process is asked for,
 the chunks run here one after the other.
 """
 from __future__ import annotations
 
+import importlib
 import os
 import pickle
 import signal
@@ -155,3 +160,126 @@ def map_split(fn: Callable[[Sequence[T]], Sequence[R]], items: Sequence[T], mini
     if n <= 1:
         return list(fn(items))
     return join(fork_map(fn, split(items, n)))
+
+
+class Standby:
+    """A process forked ahead of its work: it imports a module and runs its warm-up while this process goes on, then
+    takes one piece of work (:meth:`map`), sends back the results and ends.
+
+    Made by :func:`stand_by`; taken by :func:`take`; :func:`dismiss` stops those never taken.
+    """
+
+    def __init__(self, pid: int, request: int, reply: int):
+        self.pid, self._request, self._reply = pid, request, reply
+        self._open = True
+
+    def map(self, fn: Callable[[T], R], chunks: Sequence[T]) -> list[R] | None:
+        """``fork_map(fn, chunks)`` run by the standing process (split over :func:`workers` processes there): the
+        results, or None where that process could not do it (it is gone, or its preparation or the work failed:
+        the caller then does the work itself, which raises any error of its own with its whole traceback). ``fn``
+        must be picklable (a function of a module, taken by reference)."""
+        if not self._open:
+            return None
+        self._open = False
+        data = b""
+        request, reply = os.fdopen(self._request, "wb"), os.fdopen(self._reply, "rb")
+        try:
+            with request:
+                pickle.dump((fn, list(chunks), workers()), request, protocol=pickle.HIGHEST_PROTOCOL)
+            with reply:
+                data = reply.read()
+        except (OSError, pickle.PicklingError):
+            data = b""
+        finally:
+            request.close()
+            reply.close()
+            _reap(self.pid, kill=not data)
+        if not data:
+            return None
+        ok, value = pickle.loads(data)
+        return value if ok else None
+
+    def dismiss(self) -> None:
+        """Stop the process (its work never came) and reap it."""
+        if self._open:
+            self._open = False
+            _close(self._request, self._reply)
+            _reap(self.pid, kill=True)
+
+
+_standing: dict[str, Standby] = {}
+
+
+def stand_by(key: str, module: str, warm_up: str | None = None) -> Standby | None:
+    """Fork a :class:`Standby` for a later piece of work named ``key``: it imports ``module`` and calls its
+    function ``warm_up`` (if given), then waits. None (and nothing forked) where :func:`workers` is 1: with one core
+    the loading would only take turns with this process."""
+    if workers() <= 1 or key in _standing:
+        return _standing.get(key)
+    sys.stdout.flush()
+    sys.stderr.flush()
+    req_r, req_w = os.pipe()
+    rep_r, rep_w = os.pipe()
+    try:
+        pid = os.fork()
+    except OSError:
+        _close(req_r, req_w, rep_r, rep_w)
+        return None
+    if pid == 0:  # the standing process: load, wait for the work, do it, send, end without running the parent's code
+        status = 0
+        try:
+            _close(req_w, rep_r)
+            _standing.clear()
+            try:
+                mod = importlib.import_module(module)
+                if warm_up:
+                    getattr(mod, warm_up)()
+                with os.fdopen(req_r, "rb") as f:
+                    fn, chunks, n = pickle.load(f)
+            except EOFError:  # the parent ended, or dismissed it, before the work came
+                os._exit(0)
+            try:
+                set_workers(n)
+                data = pickle.dumps((True, fork_map(fn, chunks)), protocol=pickle.HIGHEST_PROTOCOL)
+            except BaseException:  # the parent does the work itself and meets the error there
+                data = pickle.dumps((False, None))
+            with os.fdopen(rep_w, "wb") as f:
+                f.write(data)
+        except BaseException:
+            status = 1
+        finally:
+            os._exit(status)
+    _close(req_r, rep_w)
+    _standing[key] = Standby(pid, req_w, rep_r)
+    return _standing[key]
+
+
+def take(key: str) -> Standby | None:
+    """The :class:`Standby` made for ``key`` (None where there is none); it is taken: no one else gets it."""
+    return _standing.pop(key, None)
+
+
+def dismiss() -> None:
+    """Stop every :class:`Standby` not taken (a command that ends, or fails, before their work)."""
+    while _standing:
+        _standing.popitem()[1].dismiss()
+
+
+def _close(*fds: int) -> None:
+    for fd in fds:
+        try:
+            os.close(fd)
+        except OSError:  # closed already (by the file object that wrapped it)
+            pass
+
+
+def _reap(pid: int, kill: bool) -> None:
+    if kill:
+        try:
+            os.kill(pid, signal.SIGKILL)
+        except ProcessLookupError:
+            pass
+    try:
+        os.waitpid(pid, 0)
+    except ChildProcessError:
+        pass

@@ -102,3 +102,67 @@ def test_the_survey_split_over_processes_scores_every_candidate_as_in_one(two_wo
     assert [e.violations for e in split] == [e.violations for e in whole]
     assert [e.titration.endpoint_mL if e.titration else None for e in split] == \
         [e.titration.endpoint_mL if e.titration else None for e in whole]
+
+
+# A process standing by (parallel.stand_by): forked ahead of its work, it loads a module meanwhile, then does the work.
+def _pid_and_squares(chunk):  # a function of this module: a standby takes its work pickled, by reference
+    return os.getpid(), [x * x for x in chunk]
+
+
+def _reaped(pid: int) -> bool:
+    try:
+        os.waitpid(pid, os.WNOHANG)
+    except ChildProcessError:
+        return True
+    return False
+
+
+@needs_fork
+def test_a_standby_does_its_work_in_processes_of_its_own_and_is_reaped(two_workers):
+    sb = parallel.stand_by("test", "json")
+    assert parallel.take("test") is sb and parallel.take("test") is None  # taken once
+    out = sb.map(_pid_and_squares, [[1, 2], [3]])
+    assert [sq for _, sq in out] == [[1, 4], [9]]
+    pids = {pid for pid, _ in out}
+    assert os.getpid() not in pids and sb.pid in pids and len(pids) == 2  # the standby and a child of its own
+    assert _reaped(sb.pid)
+    assert sb.map(_pid_and_squares, [[1]]) is None  # one piece of work only
+
+
+@needs_fork
+def test_a_standby_that_cannot_prepare_leaves_the_work_here(two_workers):
+    sb = parallel.stand_by("test", "optimiser._no_such_module")
+    assert parallel.take("test").map(_pid_and_squares, [[2]]) is None
+    assert _reaped(sb.pid)
+
+
+@needs_fork
+def test_a_standby_never_taken_is_stopped_and_reaped(two_workers):
+    sb = parallel.stand_by("test", "json")
+    parallel.dismiss()
+    assert _reaped(sb.pid) and parallel.take("test") is None
+
+
+def test_one_worker_stands_nothing_by():
+    parallel.set_workers(1)
+    try:
+        assert parallel.stand_by("test", "json") is None and parallel.take("test") is None
+    finally:
+        parallel.set_workers(None)
+
+
+@needs_fork
+def test_the_figures_a_standby_draws_are_those_drawn_here(two_workers):
+    from optimiser.analysis import analyse
+    from optimiser.report import html
+    from optimiser.search import run_search
+    from optimiser.scenario import parse
+
+    from conftest import TINY_SCENARIO
+    analysis = analyse(run_search(parse(TINY_SCENARIO, "tiny.yaml"), seed=1, n_gen=0))
+    here = html._figures(analysis)
+    html.prepare()
+    sb = parallel._standing[html.STANDBY]  # where _figures takes it
+    there = html._figures(analysis)
+    assert _reaped(sb.pid) and not sb._open  # the standby did the work (and ended)
+    assert there == here and set(here) == set(html.FIGURES_ALWAYS + html.FIGURES_OF_A_METHOD)

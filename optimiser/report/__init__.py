@@ -14,6 +14,7 @@ from collections.abc import Callable, Collection, Iterable
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from . import html
 from .html import FIGURES, SECTIONS, render, write_html
 from .markdown import render_md, write_md
 from .pdf import render_pdf, write_pdf
@@ -49,6 +50,13 @@ def parse_formats(formats: str | Iterable[str]) -> tuple[str, ...]:
     if not out:
         raise UnknownNameError("report format", "", FORMATS)
     return tuple(out)
+
+
+def prepare(formats: Collection[str]) -> None:
+    """Before the search: where a format asked for draws figures (``html``), a process forked now loads matplotlib
+    meanwhile (:func:`optimiser.report.html.prepare`); :func:`write` then hands it the figures."""
+    if "html" in formats:
+        html.prepare()
 
 
 MAX_NAME_BYTES = 100  # of a report's base name, UTF-8; with ".html" and a "-12" suffix it stays far below 255
@@ -123,6 +131,7 @@ __all__ = [
     "SECTIONS",
     "fmt",
     "parse_formats",
+    "prepare",
     "range_text",
     "render",
     "render_md",

@@ -56,6 +56,20 @@ def _legend_below(fig, handles: list, labels: list, ncol: int = 2) -> None:
     fig.legend(handles, labels, fontsize=7, ncol=ncol, loc="upper center", bbox_to_anchor=(0.5, 0.0), frameon=False)
 
 
+def warm_up() -> None:
+    """Draw a small figure of every kind of element the report's figures hold (lines with markers, scatter, text,
+    a legend below, ticks), so that matplotlib's one-time work (fonts found and loaded, the SVG writer set up) is done
+    before the first figure of a report; a process standing by for the figures runs this while the search goes on."""
+    fig, ax = plt.subplots(figsize=(3.2, 2.6))
+    ax.plot([0.0, 1.0], [0.0, 1.0], label="a", **_style(0))
+    ax.scatter([0.5], [0.5], marker="*", s=120, color="black", label="b")
+    ax.annotate("text", (0.5, 1.0), ha="left", va="top", fontsize=8)
+    ax.set_xlabel("pH")
+    ax.set_ylabel("log K' / log(L/mol)")
+    _legend_below(fig, *ax.get_legend_handles_labels())
+    _svg(fig)
+
+
 def conditional_figure(analysis: Analysis) -> str:
     result = analysis.result
     cc = result.conditional
