@@ -42,20 +42,24 @@ def robustness(scenario: Scenario, e: Evaluation, half_width: float = 1.0, step:
     methods = [replace(c.method(scenario), pH=float(p)) for p in grid]
     std = e.titration.standardisation if e.titration is not None else None
     e_std = std.error_percent if std is not None and std.error_percent is not None else 0.0
-    errs = _errors(scenario, methods, e_std)
-    pH_window = window(grid, errs, c.pH, target)
-    doses = {}
-    dose_scans = {}
     m0 = c.method(scenario)  # its masking as the strategy completes it (demasking adds the agent it undoes)
+    dose_grids = []
     for a, d in m0.masking:
         lo, hi = (math.log10(x) for x in catalogue().masking_agent(a).dose_range_M)
         lg = np.log10(d) + np.arange(-1.0, 1.0001, 0.1)
         lg = np.union1d(lg[(lg >= lo - 1e-9) & (lg <= hi + 1e-9)], [np.log10(d)])
-        ms = []
+        dose_grids.append(lg)
         for x in lg:
-            mask = tuple((b, 10 ** x if b == a else dd) for b, dd in m0.masking)
-            ms.append(replace(m0, masking=mask))
-        de = _errors(scenario, ms, e_std)
+            methods.append(replace(m0, masking=tuple((b, 10 ** x if b == a else dd) for b, dd in m0.masking)))
+    all_errs = _errors(scenario, methods, e_std)  # every scan in one split over processes
+    errs = all_errs[:len(grid)]
+    pH_window = window(grid, errs, c.pH, target)
+    doses = {}
+    dose_scans = {}
+    start = len(grid)
+    for (a, d), lg in zip(m0.masking, dose_grids, strict=True):
+        de = all_errs[start:start + len(lg)]
+        start += len(lg)
         dose_scans[a] = (10 ** lg, de)
         w = window(lg, de, np.log10(d), target)
         if w is not None:

@@ -32,7 +32,7 @@ from pymoo.core.problem import Problem
 from pymoo.core.variable import Choice, Real
 from pymoo.indicators.hv import HV
 
-from . import decision, parallel
+from . import decision
 from .candidate import Candidate, buffers_for
 from .comparison import ListedOutcome, compare
 from .decision import strategy_of
@@ -205,12 +205,9 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 20, n_gen: int
             notes.append(note)
     alts = tuple(Alternative(e, strategy_of(e)) for e in front)
 
-    # the recommendation's robustness, and the listed methods, side by side where cores allow
-    tasks = [lambda: robustness(scenario, chosen) if chosen is not None and with_robustness else None]
-    if scenario.methods:
-        tasks.append(lambda: compare(scenario, [a.evaluation for a in alts], chosen, with_robustness))
-    scans, *rest = parallel.fork_map(lambda task: task(), tasks)
-    listed = rest[0] if rest else ()
+    # the recommendation's robustness, then the listed methods (each robustness scan splits over the cores)
+    scans = robustness(scenario, chosen) if chosen is not None and with_robustness else None
+    listed = compare(scenario, [a.evaluation for a in alts], chosen, with_robustness) if scenario.methods else ()
     if scans is not None:
         pH_w, doses, scan_pH, scan_dose = scans
     report(4)
