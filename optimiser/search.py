@@ -43,8 +43,8 @@ from .robustness import robustness
 from .scenario import Scenario
 from .search_stats import SearchStats
 from .structures import Structure, enumerate_structures, structure_key
-from .survival import RankAndCrowdingSurvival
 from .survey import BUFFER_LOG_RANGE, EDGE, SURVEY_DOSE, Survey, dose_of, position_of
+from .survival import RankAndCrowdingSurvival
 from .titration import Titration, simulate
 
 CC_PH = np.round(np.arange(1.0, 13.51, 0.25), 2)  # pH grid of the conditional-constant curves in the result

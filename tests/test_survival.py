@@ -13,8 +13,12 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from pymoo.core.population import Population
 from pymoo.core.problem import Problem
-from pymoo.operators.survival.rank_and_crowding import RankAndCrowding as PymooRankAndCrowding
-from pymoo.operators.survival.rank_and_crowding.metrics import calc_crowding_distance as pymoo_crowding
+from pymoo.operators.survival.rank_and_crowding import (
+    RankAndCrowding as PymooRankAndCrowding,
+)
+from pymoo.operators.survival.rank_and_crowding.metrics import (
+    calc_crowding_distance as pymoo_crowding,
+)
 
 from optimiser.survival import RankAndCrowdingSurvival, crowding_distance
 
