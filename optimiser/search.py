@@ -24,7 +24,6 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
-from pymoo.algorithms.moo.nsga2 import RankAndCrowding
 from pymoo.core.individual import Individual
 from pymoo.core.mixed import MixedVariableGA
 from pymoo.core.population import Population
@@ -45,6 +44,7 @@ from .scenario import Scenario
 from .search_stats import SearchStats
 from .structures import Structure, enumerate_structures, structure_key
 from .survey import BUFFER_LOG_RANGE, EDGE, SURVEY_DOSE, Survey, dose_of, position_of
+from .survival import RankAndCrowdingSurvival
 from .titration import Titration, simulate
 
 CC_PH = np.round(np.arange(1.0, 13.51, 0.25), 2)  # pH grid of the conditional-constant curves in the result
@@ -392,7 +392,7 @@ def _polish(scenario: Scenario, ev: Evaluator, leaders: Sequence[Structure], see
         x.update({f"dose{i + 1}": float(rng.random()) for i in range(problem.n_mask)})
         seeds.append(x)
     pop = Population.create(*[Individual(X=x) for x in seeds])
-    algo = MixedVariableGA(pop_size=pop_size, sampling=pop, survival=RankAndCrowding(crowding_func="cd"))
+    algo = MixedVariableGA(pop_size=pop_size, sampling=pop, survival=RankAndCrowdingSurvival())
     algo.setup(problem, termination=("n_gen", n_gen), seed=seed, verbose=False)
     scale = _FrontScale(ev)
     last = scale.hypervolume(ev)
