@@ -146,10 +146,10 @@ def read_rounds(live: Sequence[Plan], then: Callable[[Plan], Plan] | None = None
         solved = solve_batch([r.plan for r in todo], [r.probes() if probing else r.wants for r in todo],
                              [r.coarse for r in todo])
         if probing:
-            for r, eq in zip(todo, solved):
+            for r, eq in zip(todo, solved, strict=True):
                 r.probed = eq
             return reads, seconds
-        for r, eq in zip(todo, solved):
+        for r, eq in zip(todo, solved, strict=True):
             r.take(eq)
         if then is not None and not seconds:
             seconds = [Read(then(r.plan)) if r.grid is not None else None for r in reads]

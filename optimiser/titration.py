@@ -461,12 +461,12 @@ def _run(live: Sequence[Plan], pH_drift: bool, standard: Callable[[Plan], Plan] 
     reads, seconds = read_rounds(live, standard)
     coarse, V_eps = [r.coarse for r in reads], [r.V_ep for r in reads]
     drifts = pH_drifts(live, coarse, V_eps) if pH_drift else [None] * len(live)
-    done = [_finish(r.plan, r.coarse, r.fine, r.grid, r.probed, r.ref, r.V_ep, d) for r, d in zip(reads, drifts)]
+    done = [_finish(r.plan, r.coarse, r.fine, r.grid, r.probed, r.ref, r.V_ep, d) for r, d in zip(reads, drifts, strict=True)]
     if standard is None:
         return done
     return [replace(t, standardisation=None if s is None else
                     _endpoint_only(s.plan, s.coarse, s.fine, s.grid, s.probed, s.ref, s.V_ep))
-            for t, s in zip(done, seconds)]
+            for t, s in zip(done, seconds, strict=True)]
 
 
 def _sharpness_band(p: Plan, eq: Equilibrium, eqf: Equilibrium, grid: Array, ref: float) -> tuple[float | None, float | None]:

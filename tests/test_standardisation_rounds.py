@@ -29,7 +29,8 @@ def solved(monkeypatch):
     solve_batch = curves.solve_batch
 
     def counting(plans, grids, starts=None):
-        out.extend((frozenset(p.sample.metals), len(g)) for p, g in zip(plans, grids) if g is not None and len(g))
+        out.extend((frozenset(p.sample.metals), len(g))
+                   for p, g in zip(plans, grids, strict=True) if g is not None and len(g))
         return solve_batch(plans, grids, starts)
 
     monkeypatch.setattr(curves, "solve_batch", counting)
@@ -43,7 +44,7 @@ def _equal(a, b) -> bool:
     if isinstance(a, dict) and isinstance(b, dict):
         return a.keys() == b.keys() and all(_equal(a[k], b[k]) for k in a)
     if isinstance(a, (tuple, list)) and isinstance(b, (tuple, list)):
-        return len(a) == len(b) and all(_equal(x, y) for x, y in zip(a, b))
+        return len(a) == len(b) and all(_equal(x, y) for x, y in zip(a, b, strict=True))
     if hasattr(a, "__dataclass_fields__") and type(a) is type(b):
         return all(_equal(getattr(a, f.name), getattr(b, f.name)) for f in fields(a))
     return a == b
