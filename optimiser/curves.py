@@ -3,7 +3,8 @@ of the end-point regions (solved finer until the step there is small against the
 pH left free. :mod:`optimiser.titration` sets the titrations up and reads them."""
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -61,6 +62,98 @@ def solve_batch(plans: Sequence[Plan], grids: Sequence[Array | None], starts: Se
             out[k] = slice_of(eq, slice(start, start + n))
             start += n
     return out
+
+
+@dataclass
+class Read:
+    """One titration's curve as the rounds of batched solves leave it (:func:`read_rounds`).
+
+    Attributes
+    ----------
+    plan : Plan
+    coarse : Equilibrium
+        The coarse curve, on ``plan.V``.
+    ref : float
+        The strategy's reference for the indicator's turned fraction, from the coarse curve.
+    grid : array or None
+        The refined end-point region (with the finer rounds merged in) [mL]; None where the coarse curve shows no
+        end point.
+    fine : Equilibrium or None
+        Solved on ``grid``.
+    V_ep : float or None
+        The end point read on ``grid`` [mL]; None where there is none.
+    probed : Equilibrium
+        Point 0 the equivalence (``plan.V_eq_ref``), point 1 the end point where there is one.
+    """
+
+    plan: Plan
+    coarse: Equilibrium | None = None
+    ref: float = 0.0
+    grid: Array | None = None
+    fine: Equilibrium | None = None
+    V_ep: float | None = None
+    probed: Equilibrium | None = None
+    rounds: int = 0  # finer rounds solved
+    wants: Array | None = None  # the grid of its next solve (None: nothing more before its probes)
+
+    def __post_init__(self) -> None:
+        self.wants = self.plan.V
+
+    def take(self, eq: Equilibrium | None) -> None:
+        """The solve of ``wants`` done: keep it and set the next grid (the finer rounds, see :func:`finer_grid`)."""
+        p = self.plan
+        if self.coarse is None:
+            self.coarse, self.ref = eq, p.method.strategy.reference(p, eq)
+            self.grid = self.wants = fine_grid(p, eq, self.ref)
+            return
+        if self.fine is None:
+            self.fine = eq
+        else:  # a finer round, merged into the refined region
+            both = np.concatenate([self.grid, self.wants])
+            order = np.argsort(both, kind="stable")
+            self.grid, self.fine = both[order], merge(self.fine, eq, order)
+            self.rounds += 1
+        self.V_ep = end_point(p, self.grid, self.fine, self.ref)
+        finer = finer_grid(p, self.grid, self.V_ep) if self.rounds < FINER_ROUNDS else None
+        self.wants = finer if finer is not None and len(finer) else None
+
+    def probes(self) -> Array:
+        return np.array([self.plan.V_eq_ref] + ([self.V_ep] if self.V_ep is not None else []))
+
+
+def read_rounds(live: Sequence[Plan], then: Callable[[Plan], Plan] | None = None) -> tuple[list[Read], list[Read | None]]:
+    """Every titration's curve read in rounds, each round one batched solve (:func:`solve_batch`): the coarse curve,
+    the end-point region, finer rounds where it is still coarse against the titre (at most :data:`FINER_ROUNDS`), and
+    at last, all in one solve, the probes at the equivalence and end points.
+
+    ``then`` sets up a second titration for each one whose coarse curve shows an end point (its primary standard);
+    it joins one round later and is read the same way. Those whose titration shows none get None: with no end point
+    there is nothing to standardise, so their standard is neither set up nor solved.
+
+    Returns
+    -------
+    reads, seconds
+        One :class:`Read` per plan of ``live``, in order; its second's (or None) where ``then`` is given, else [].
+    """
+    reads = [Read(p) for p in live]
+    seconds: list[Read | None] = []
+    every = list(reads)
+    while True:
+        todo = [r for r in every if r.wants is not None]
+        probing = not todo
+        if probing:  # every curve read: the probes of all of them together
+            todo = every
+        solved = solve_batch([r.plan for r in todo], [r.probes() if probing else r.wants for r in todo],
+                             [r.coarse for r in todo])
+        if probing:
+            for r, eq in zip(todo, solved, strict=True):
+                r.probed = eq
+            return reads, seconds
+        for r, eq in zip(todo, solved, strict=True):
+            r.take(eq)
+        if then is not None and not seconds:
+            seconds = [Read(then(r.plan)) if r.grid is not None else None for r in reads]
+            every += [r for r in seconds if r is not None]
 
 
 class PointLabels(Sequence):

@@ -10,12 +10,12 @@ Definitions used throughout (and printed in the report):
 
 The flow: :func:`plan` sets up each method (pretreatment, chemical system, totals along the curve by its
 strategy), one batched solve per chemical system gives the coarse curves, further ones the refined end-point regions,
-another the equivalence and end points themselves (:mod:`optimiser.curves`); :func:`_finish` reads them
-(:mod:`optimiser.readout`).
+another the equivalence and end points themselves (:func:`optimiser.curves.read_rounds`; the primary standards of
+those that show an end point one round behind); :func:`_finish` reads them (:mod:`optimiser.readout`).
 """
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -25,7 +25,7 @@ from . import findings as fd
 from . import readout
 from .anions import assumptions as anion_assumptions
 from .constants import DAVIES_LIMIT_M, H, database
-from .curves import FINER_ROUNDS, end_point, fine_grid, finer_grid, merge, pH_drifts, solve_batch
+from .curves import merge, pH_drifts, read_rounds
 from .equilibrium import Equilibrium, build_system
 from .errors import InapplicableMethodError, MissingConstantError
 from .findings import Finding
@@ -131,7 +131,8 @@ class Titration:
     analyte_precipitates: tuple[str, ...] = ()
     mass_balance_error: float = 0.0  # largest relative mass-balance error over the curve, recomputed
     ionic_strength_M: Array = field(default_factory=lambda: np.zeros(0), repr=False)  # computed at each point [mol/L]
-    standardisation: EndPoint | None = None  # the same method on the primary standard, where simulated
+    standardisation: EndPoint | None = None  # the same method on the primary standard, where simulated (not where
+    # this titration shows no end point on its coarse curve: there is nothing to standardise)
     governing: int = 0  # the end point the single-value properties read
     steps: tuple["Titration", ...] = field(default=(), repr=False)  # a multi-step strategy's titrations, in order
     titre_total_mL: float | None = None  # a multi-step strategy's burette volume, where it is not one end point's
@@ -386,7 +387,8 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
         as ``(index, exception)``; otherwise the error is raised.
     standardise : bool
         Also simulate each method on the primary standard (:func:`standard_sample`), so that each titration carries
-        the error left after the titrant is standardised (``Titration.standardisation``).
+        the error left after the titrant is standardised (``Titration.standardisation``). Only where the sample's
+        coarse curve shows an end point: with none there is nothing to standardise, and ``standardisation`` is None.
     carry : Carry or list of Carry, optional
         What earlier steps left in the solution (a multi-step strategy's later step; one for all the methods, or one
         per method; not applied to the standard).
@@ -428,11 +430,11 @@ def simulate_many(sample: Sample, methods: Sequence[Method], n_points: int = 161
             composite[k] = None
             plans.append(None)
     live = [p for p in plans if p is not None]
-    std = ([plan(standard_sample(sample), p.method, n_points, _reagents_only(p.carry), like=p) for p in live]
-           if standardise else [])
-    done = _run(live + std, pH_drift, n_drift=len(live), n_full=len(live)) if live else []
-    if std:
-        done = [replace(t, standardisation=s) for t, s in zip(done[:len(live)], done[len(live):])]
+
+    def standard(p: Plan) -> Plan:
+        return plan(standard_sample(sample), p.method, n_points, _reagents_only(p.carry), like=p)
+
+    done = _run(live, pH_drift, standard if standardise else None) if live else []
     results = iter(done)
     return [composite[k] if k in composite else next(results) for k in range(len(plans))]
 
@@ -449,38 +451,22 @@ def _reagents_only(carry: Carry | None) -> Carry | None:
     return Carry(0.0, kept) if kept else None
 
 
-def _run(live: Sequence[Plan], pH_drift: bool, n_drift: int, n_full: int | None = None) -> list[Titration | EndPoint]:
-    """The batched solves (coarse curves, refined end-point regions, finer where still coarse against the titre,
-    equivalence and end points), then the read-out of each titration (the pH drift of the first ``n_drift``): the
-    whole :class:`Titration` of the first ``n_full`` (all by default), only the :class:`EndPoint` of the others (the
-    standards of the first ones, in their order, of which nothing else is read). A standard whose titration shows no
-    end point on its coarse curve is read no further: with no end point there is nothing to standardise."""
-    n_full = len(live) if n_full is None else n_full
-    coarse = solve_batch(live, [p.V for p in live])
-    refs = [p.method.strategy.reference(p, eq) for p, eq in zip(live, coarse)]
-    fine_grids = [fine_grid(p, eq, ref) for p, eq, ref in zip(live, coarse, refs)]
-    for k in range(n_full, len(live)):
-        if fine_grids[k - n_full] is None:
-            fine_grids[k] = None
-    fine = solve_batch(live, fine_grids, coarse)
-    V_eps = [end_point(p, g, eqf, ref) if eqf is not None else None
-             for p, g, eqf, ref in zip(live, fine_grids, fine, refs)]
-    for _ in range(FINER_ROUNDS):  # where the region is still coarse against the titre, once more around the end point
-        finer = [finer_grid(p, g, x) for p, g, x in zip(live, fine_grids, V_eps)]
-        if all(g is None for g in finer):
-            break
-        for k, eq2 in enumerate(solve_batch(live, finer, coarse)):
-            if eq2 is not None:
-                both = np.concatenate([fine_grids[k], finer[k]])
-                order = np.argsort(both, kind="stable")
-                fine_grids[k], fine[k] = both[order], merge(fine[k], eq2, order)
-                V_eps[k] = end_point(live[k], fine_grids[k], fine[k], refs[k])
-    probes = [np.array([p.V_eq_ref] + ([v] if v is not None else [])) for p, v in zip(live, V_eps)]
-    probed = solve_batch(live, probes, coarse)
-    drifts = pH_drifts(live[:n_drift], coarse, V_eps) if pH_drift else []
-    drifts += [None] * (len(live) - len(drifts))
-    return [_finish(p, c, f, g, pr, ref, v, d) if k < n_full else _endpoint_only(p, c, f, g, pr, ref, v)
-            for k, (p, c, f, g, pr, ref, v, d) in enumerate(zip(live, coarse, fine, fine_grids, probed, refs, V_eps, drifts))]
+def _run(live: Sequence[Plan], pH_drift: bool, standard: Callable[[Plan], Plan] | None = None
+         ) -> list[Titration]:
+    """The batched solves (:func:`optimiser.curves.read_rounds`: coarse curves, refined end-point regions, finer
+    where still coarse against the titre, equivalence and end points), then the read-out of each titration, with its
+    pH drift where asked. ``standard`` sets up a titration's primary standard; it is set up and solved, one round
+    behind, only for a titration whose coarse curve shows an end point (with none there is nothing to standardise),
+    and only its :class:`EndPoint` is read, as ``Titration.standardisation`` (None for the others)."""
+    reads, seconds = read_rounds(live, standard)
+    coarse, V_eps = [r.coarse for r in reads], [r.V_ep for r in reads]
+    drifts = pH_drifts(live, coarse, V_eps) if pH_drift else [None] * len(live)
+    done = [_finish(r.plan, r.coarse, r.fine, r.grid, r.probed, r.ref, r.V_ep, d) for r, d in zip(reads, drifts, strict=True)]
+    if standard is None:
+        return done
+    return [replace(t, standardisation=None if s is None else
+                    _endpoint_only(s.plan, s.coarse, s.fine, s.grid, s.probed, s.ref, s.V_ep))
+            for t, s in zip(done, seconds, strict=True)]
 
 
 def _sharpness_band(p: Plan, eq: Equilibrium, eqf: Equilibrium, grid: Array, ref: float) -> tuple[float | None, float | None]:
