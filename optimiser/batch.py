@@ -83,6 +83,8 @@ def run_one(path: str, out_dir: str, seed: int, base: str | None = None,
     from .decision import strategy_of
     from .scenario import load
     from .search import run_search
+    import gc
+
     from . import parallel
     t0 = time.perf_counter()
     name = Path(path).stem
@@ -111,6 +113,8 @@ def run_one(path: str, out_dir: str, seed: int, base: str | None = None,
         return BatchRow(path, name, False, message=f"internal error: {tb}", seconds=time.perf_counter() - t0)
     finally:
         parallel.dismiss()  # a standby for the figures of a report never written
+        if not gc.isenabled():  # the console command runs with the collector off: its cycles are freed here
+            gc.collect()
 
 
 def _fmt(x, nd=2) -> str:
