@@ -19,7 +19,7 @@ from .listed_methods import ListedMethod
 from .objectives import complexity_of
 from .readout import DROP_mL, budget_label
 from .reagents import HAZARD_NAMES, catalogue
-from .robustness import robustness
+from .robustness import robustness_many
 from .scenario import Scenario
 from .strategies import strategy
 
@@ -98,26 +98,44 @@ def compare(scenario: Scenario, front: Sequence[Evaluation], recommended: Evalua
     recommended : Evaluation or None
         The recommendation, scored on the fine curve.
     """
+    return _outcomes(scenario, front, recommended, with_robustness)[0]
+
+
+def compare_with_robustness(scenario: Scenario, front: Sequence[Evaluation], recommended: Evaluation | None,
+                            with_robustness: bool = True) -> tuple[tuple[ListedOutcome, ...], tuple | None]:
+    """:func:`compare`, and the recommendation's :func:`~optimiser.robustness.robustness` (None where there is no
+    recommendation or ``with_robustness`` is False), all the robustness scans in one split over processes."""
+    return _outcomes(scenario, front, recommended, with_robustness, scan_recommended=True)
+
+
+def _outcomes(scenario: Scenario, front: Sequence[Evaluation], recommended: Evaluation | None, with_robustness: bool,
+              scan_recommended: bool = False) -> tuple[tuple[ListedOutcome, ...], tuple | None]:
     listed = scenario.methods
-    if not listed:
-        return ()
-    evaluator = _evaluator(scenario, listed)
-    candidates = [m.candidate() for m in listed]
-    coarse = evaluator.evaluate_all(candidates)
-    fine = evaluator.evaluate_all(candidates, n_points=FINE_POINTS)
+    coarse: list[Evaluation] = []
+    fine: list[Evaluation] = []
+    if listed:
+        evaluator = _evaluator(scenario, listed)
+        candidates = [m.candidate() for m in listed]
+        coarse = evaluator.evaluate_all(candidates)
+        fine = evaluator.evaluate_all(candidates, n_points=FINE_POINTS)
+    scanned = [ef for ef in fine if with_robustness and ef.titration is not None and ef.titration.endpoint_mL is not None]
+    own = scan_recommended and with_robustness and recommended is not None
+    windows = robustness_many(scenario, ([recommended] if own else []) + scanned) if own or scanned else []
+    rec_scans = windows.pop(0) if own else None
+    by_id = {id(ef): w for ef, w in zip(scanned, windows, strict=True)}
     feasible_front = [e for e in front if e.feasible]
     out = []
     for m, ec, ef in zip(listed, coarse, fine, strict=True):
         pH_w, doses = None, {}
-        if with_robustness and ef.titration is not None and ef.titration.endpoint_mL is not None:
-            pH_w, doses, _, _ = robustness(scenario, ef)
+        if id(ef) in by_id:
+            pH_w, doses, _, _ = by_id[id(ef)]
         out.append(ListedOutcome(
             listed=m, evaluation=ef, meets_criteria=meets_criteria(scenario, ef),
             dominated_by=sum(constrained_dominates(f, ec) for f in feasible_front),
             dominated_by_recommendation=recommended is not None and recommended.feasible
             and constrained_dominates(recommended, ef),
             robust_pH=pH_w, robust_dose=dict(doses)))
-    return tuple(out)
+    return tuple(out), rec_scans
 
 
 # ---- plain rows for the report (no chemistry module is needed to render them)

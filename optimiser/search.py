@@ -33,13 +33,12 @@ from pymoo.indicators.hv import HV
 
 from . import decision
 from .candidate import Candidate, buffers_for
-from .comparison import ListedOutcome, compare
+from .comparison import ListedOutcome, compare_with_robustness
 from .decision import strategy_of
 from .evaluation import Evaluation, Evaluator
 from .objectives import CONSTRAINTS, conditional_curves
 from .reagents import catalogue
 from .refinement import refine
-from .robustness import robustness
 from .scenario import Scenario
 from .search_stats import SearchStats
 from .structures import Structure, enumerate_structures, structure_key
@@ -205,9 +204,8 @@ def run_search(scenario: Scenario, seed: int = 1, pop_size: int = 20, n_gen: int
             notes.append(note)
     alts = tuple(Alternative(e, strategy_of(e)) for e in front)
 
-    # the recommendation's robustness, then the listed methods (each robustness scan splits over the cores)
-    scans = robustness(scenario, chosen) if chosen is not None and with_robustness else None
-    listed = compare(scenario, [a.evaluation for a in alts], chosen, with_robustness) if scenario.methods else ()
+    # the listed methods, then the robustness scans of the recommendation and of each listed method, in one split
+    listed, scans = compare_with_robustness(scenario, [a.evaluation for a in alts], chosen, with_robustness)
     if scans is not None:
         pH_w, doses, scan_pH, scan_dose = scans
     report(4)
