@@ -23,7 +23,7 @@ import pickle
 import signal
 import sys
 from collections.abc import Callable, Sequence
-from typing import TypeVar
+from typing import NoReturn, TypeVar
 
 T = TypeVar("T")
 R = TypeVar("R")
@@ -98,23 +98,17 @@ def fork_map(fn: Callable[[T], R], chunks: Sequence[T]) -> list[R]:
             children.append(None)
             continue
         if pid == 0:  # the child: compute (splitting nothing further), send, and leave without running anything of
-            status = 0  # the parent's
-            try:
+            def outcome(chunk=c, read_end=r) -> bytes:  # the parent's
                 set_workers(1)
-                os.close(r)
+                os.close(read_end)
                 try:
-                    data = pickle.dumps((True, fn(c)), protocol=pickle.HIGHEST_PROTOCOL)
+                    return pickle.dumps((True, fn(chunk)), protocol=pickle.HIGHEST_PROTOCOL)
                 except BaseException as exc:  # sent to the parent, which raises it
                     try:
-                        data = pickle.dumps((False, exc), protocol=pickle.HIGHEST_PROTOCOL)
+                        return pickle.dumps((False, exc), protocol=pickle.HIGHEST_PROTOCOL)
                     except Exception:
-                        data = pickle.dumps((False, RuntimeError(f"{type(exc).__name__}: {exc}")))
-                with os.fdopen(w, "wb") as f:
-                    f.write(data)
-            except BaseException:
-                status = 1
-            finally:
-                os._exit(status)
+                        return pickle.dumps((False, RuntimeError(f"{type(exc).__name__}: {exc}")))
+            _reply_and_exit(w, outcome)
         os.close(w)
         children.append((pid, r))
     before = _workers
@@ -226,8 +220,7 @@ def stand_by(key: str, module: str, warm_up: str | None = None) -> Standby | Non
         _close(req_r, req_w, rep_r, rep_w)
         return None
     if pid == 0:  # the standing process: load, wait for the work, do it, send, end without running the parent's code
-        status = 0
-        try:
+        def outcome() -> bytes:
             _close(req_w, rep_r)
             _standing.clear()
             try:
@@ -240,15 +233,10 @@ def stand_by(key: str, module: str, warm_up: str | None = None) -> Standby | Non
                 os._exit(0)
             try:
                 set_workers(n)
-                data = pickle.dumps((True, fork_map(fn, chunks)), protocol=pickle.HIGHEST_PROTOCOL)
+                return pickle.dumps((True, fork_map(fn, chunks)), protocol=pickle.HIGHEST_PROTOCOL)
             except BaseException:  # the parent does the work itself and meets the error there
-                data = pickle.dumps((False, None))
-            with os.fdopen(rep_w, "wb") as f:
-                f.write(data)
-        except BaseException:
-            status = 1
-        finally:
-            os._exit(status)
+                return pickle.dumps((False, None))
+        _reply_and_exit(rep_w, outcome)
     _close(req_r, rep_w)
     _standing[key] = Standby(pid, req_w, rep_r)
     return _standing[key]
@@ -263,6 +251,20 @@ def dismiss() -> None:
     """Stop every :class:`Standby` not taken (a command that ends, or fails, before their work)."""
     while _standing:
         _standing.popitem()[1].dismiss()
+
+
+def _reply_and_exit(fd: int, outcome: Callable[[], bytes]) -> NoReturn:
+    """In a forked child: write ``outcome()`` to ``fd`` and leave at once, running nothing more of the parent's code
+    (exit status 1 where that failed: the parent then finds no reply)."""
+    status = 0
+    try:
+        data = outcome()
+        with os.fdopen(fd, "wb") as f:
+            f.write(data)
+    except BaseException:
+        status = 1
+    finally:
+        os._exit(status)
 
 
 def _close(*fds: int) -> None:
