@@ -76,6 +76,7 @@ def largest_part_text(t: Any) -> str:
 def run_one(path: str, out_dir: str, seed: int, base: str | None = None,
             report_format: str | tuple[str, ...] = DEFAULT_FORMAT) -> BatchRow:
     """Load, search, report one scenario; never raises (a failure becomes a row with its message)."""
+    import gc
     import time
 
     from . import report
@@ -83,9 +84,6 @@ def run_one(path: str, out_dir: str, seed: int, base: str | None = None,
     from .decision import strategy_of
     from .scenario import load
     from .search import run_search
-    import gc
-
-    from . import parallel
     t0 = time.perf_counter()
     name = Path(path).stem
     try:

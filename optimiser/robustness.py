@@ -54,6 +54,7 @@ class _Scans:
 
     grid: np.ndarray  # pH
     dose_grids: tuple[np.ndarray, ...]  # log10 dose [mol/L], one per masking agent of the method
+    masking: tuple[tuple[str, float], ...]  # the method's masking as its strategy completes it (agent, dose [mol/L])
     methods: tuple[Method, ...]
     e_std: float  # the error of the standardisation at the set-point [%]
 
@@ -76,19 +77,18 @@ def _scans(scenario: Scenario, e: Evaluation, half_width: float, step: float) ->
         dose_grids.append(lg)
         for x in lg:
             methods.append(replace(m0, masking=tuple((b, 10 ** x if b == a else dd) for b, dd in m0.masking)))
-    return _Scans(grid, tuple(dose_grids), tuple(methods), e_std)
+    return _Scans(grid, tuple(dose_grids), tuple(m0.masking), tuple(methods), e_std)
 
 
 def _windows(scenario: Scenario, e: Evaluation, sc: _Scans, errs: np.ndarray):
     """:func:`robustness`'s windows and scans from the errors of the scan's methods, in their order."""
     c, target = e.candidate, scenario.targets.max_error_percent
-    m0 = c.method(scenario)
     errs_pH = errs[:len(sc.grid)]
     pH_window = window(sc.grid, errs_pH, c.pH, target)
     doses = {}
     dose_scans = {}
     start = len(sc.grid)
-    for (a, d), lg in zip(m0.masking, sc.dose_grids, strict=True):
+    for (a, d), lg in zip(sc.masking, sc.dose_grids, strict=True):
         de = errs[start:start + len(lg)]
         start += len(lg)
         dose_scans[a] = (10 ** lg, de)
